@@ -1,0 +1,31 @@
+// Package engine runs decoder-only transformer checkpoints on the CPU: the
+// forward pass with a key/value cache for the OPT, GPT-2 and Llama families,
+// batched prefill of several sequences, per-position log-probabilities,
+// continuation log-likelihoods, sliding-window scoring of long texts, greedy
+// generation with stop sequences, and a per-layer hook through which a caller
+// restricts, token by token, which MLP neurons and attention heads run.
+//
+// # Weights
+//
+// Weights stay in their stored dtype (f32, f16 or bf16) inside the
+// memory-mapped safetensors files; the kernels convert half-precision panels as
+// they stream them, so resident memory after Load stays near the size of the
+// files. Only vectors (biases, norm weights) are copied to f32.
+//
+// # Determinism
+//
+// Every kernel computes each output element with one ascending reduction, and
+// work is split only over independent outputs, so a sequence scores bit for
+// bit the same alone or inside a batch, at any thread count, with or without a
+// hook that keeps every unit. A different kernel path (assembly against pure
+// Go) may move the last bits; golden tolerances absorb that.
+//
+// # Sparsity hook
+//
+// With no Hook the dense batched path runs unchanged. With a Hook, each token
+// of each layer asks the hook which heads and which neurons to keep. Keys and
+// values are computed for every head (later tokens may attend with a head
+// this token skipped), queries, attention and the output projection only for
+// the kept heads; the MLP computes only the kept neurons of its up (and gate)
+// projection and reads only their columns of the down projection.
+package engine

@@ -1,0 +1,365 @@
+package engine
+
+import (
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"runtime"
+	"sort"
+	"strings"
+
+	"sparsegate/harness/checkpoint"
+	"sparsegate/harness/kernels"
+	"sparsegate/harness/tokenize"
+)
+
+// A Model is a loaded checkpoint ready to run. It is safe for concurrent use
+// by several Sessions; it holds the weight mapping open until Close.
+type Model struct {
+	// Config is the architecture read from config.json.
+	Config *checkpoint.Config
+	// Dir is the checkpoint directory.
+	Dir string
+	// Tokenizer is the checkpoint's tokenizer, nil when the directory has none.
+	Tokenizer *tokenize.Tokenizer
+
+	weights *checkpoint.Weights
+	threads int
+
+	embed  *kernels.Mat // token embedding, V×d
+	pos    *kernels.Mat // learned positions (OPT, GPT-2), nil for rotary
+	layers []layer
+	normW  []float32
+	normB  []float32
+	head   *kernels.Mat // output head, V×d (the embedding when tied)
+	rope   []float32    // inverse frequencies (Llama)
+}
+
+// layer holds one decoder block's weights. For GPT-2, qkv is the fused
+// projection (Out = 3d); otherwise q, k and v are separate.
+type layer struct {
+	attnNormW, attnNormB []float32
+	qkv, q, k, v, o      *kernels.Mat
+	qkvB, qB, kB, vB, oB []float32
+	mlpNormW, mlpNormB   []float32
+	up, gate, down       *kernels.Mat
+	upB, downB           []float32
+}
+
+// Options tune how a model runs; the zero value is usable.
+type Options struct {
+	// Threads is the number of worker goroutines for the kernels; 0 means
+	// runtime.NumCPU(). Results do not depend on it.
+	Threads int
+	// NoTokenizer skips loading the tokenizer files even when present.
+	NoTokenizer bool
+}
+
+// Load opens a checkpoint directory: config.json, the safetensors weights
+// (single file or sharded) and, when present, the tokenizer. Every tensor the
+// family's layout needs is checked for presence, dtype and shape; errors name
+// the file and the tensor.
+func Load(dir string, opts Options) (*Model, error) {
+	cfg, err := checkpoint.LoadConfig(filepath.Join(dir, "config.json"))
+	if err != nil {
+		return nil, err
+	}
+	w, err := checkpoint.OpenWeights(dir)
+	if err != nil {
+		return nil, err
+	}
+	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads}
+	if m.threads <= 0 {
+		m.threads = runtime.NumCPU()
+	}
+	if err := m.bind(); err != nil {
+		w.Close()
+		return nil, err
+	}
+	if !opts.NoTokenizer && hasTokenizer(dir) {
+		tok, err := tokenize.LoadDir(dir)
+		if err != nil {
+			w.Close()
+			return nil, err
+		}
+		if tok.VocabSize() > cfg.VocabSize {
+			w.Close()
+			return nil, fmt.Errorf("%s: the tokenizer has %d tokens but the embedding %s has only %d rows; the tokenizer does not belong to this checkpoint",
+				dir, tok.VocabSize(), embedName(cfg), cfg.VocabSize)
+		}
+		m.Tokenizer = tok
+	}
+	return m, nil
+}
+
+func hasTokenizer(dir string) bool {
+	for _, f := range []string{"tokenizer.json", "vocab.json"} {
+		if _, err := os.Stat(filepath.Join(dir, f)); err == nil {
+			return true
+		}
+	}
+	return false
+}
+
+// embedName gives the name of the token embedding for messages.
+func embedName(cfg *checkpoint.Config) string {
+	switch cfg.Family {
+	case checkpoint.OPT:
+		return "model.decoder.embed_tokens.weight"
+	case checkpoint.GPT2:
+		return "wte.weight"
+	default:
+		return "model.embed_tokens.weight"
+	}
+}
+
+// Close releases the weight mapping. The Model must not be used afterwards.
+func (m *Model) Close() error { return m.weights.Close() }
+
+// Weights returns the checkpoint's weight set (for inspection and hashing).
+func (m *Model) Weights() *checkpoint.Weights { return m.weights }
+
+// Threads returns the number of kernel workers the model uses.
+func (m *Model) Threads() int { return m.threads }
+
+// binder resolves layout names to tensors, accepting the name prefixes that
+// open checkpoints of each family use, and records which tensors it used.
+type binder struct {
+	w      *checkpoint.Weights
+	prefix string // prepended to layout names in this checkpoint
+	used   map[string]bool
+	errs   []string
+}
+
+func (b *binder) tensor(name string, shape ...int) *checkpoint.Tensor {
+	full := b.prefix + name
+	t, ok := b.w.Lookup(full)
+	if !ok {
+		b.errs = append(b.errs, fmt.Sprintf("tensor %q is missing", full))
+		return nil
+	}
+	b.used[full] = true
+	if !equalShape(t.Shape, shape) {
+		b.errs = append(b.errs, fmt.Sprintf("%s: tensor %q has shape %v but config.json implies %v", t.File, full, t.Shape, shape))
+		return nil
+	}
+	switch t.DType {
+	case checkpoint.F32, checkpoint.F16, checkpoint.BF16:
+	default:
+		b.errs = append(b.errs, fmt.Sprintf("%s: tensor %q has dtype %s; weights must be F32, F16 or BF16", t.File, full, t.DType))
+		return nil
+	}
+	return t
+}
+
+// mat binds a 2-D weight as a linear map. transposed says the stored layout
+// is In×Out (GPT-2 Conv1D); shape is the stored shape.
+func (b *binder) mat(name string, transposed bool, shape ...int) *kernels.Mat {
+	t := b.tensor(name, shape...)
+	if t == nil {
+		return nil
+	}
+	m := &kernels.Mat{Out: shape[0], In: shape[1], Transposed: transposed}
+	if transposed {
+		m.Out, m.In = shape[1], shape[0]
+	}
+	var err error
+	switch t.DType {
+	case checkpoint.F32:
+		m.DType = kernels.F32
+		m.F32, err = t.Float32s()
+	case checkpoint.F16:
+		m.DType = kernels.F16
+		m.Half, err = t.Uint16s()
+	case checkpoint.BF16:
+		m.DType = kernels.BF16
+		m.Half, err = t.Uint16s()
+	}
+	if err != nil {
+		b.errs = append(b.errs, fmt.Sprintf("%s: tensor %q: %v", t.File, b.prefix+name, err))
+		return nil
+	}
+	return m
+}
+
+// vec binds a 1-D weight, converted to f32 (vectors are small).
+func (b *binder) vec(name string, n int) []float32 {
+	t := b.tensor(name, n)
+	if t == nil {
+		return nil
+	}
+	out := make([]float32, n)
+	switch t.DType {
+	case checkpoint.F32:
+		v, err := t.Float32s()
+		if err != nil {
+			b.errs = append(b.errs, fmt.Sprintf("%s: tensor %q: %v", t.File, b.prefix+name, err))
+			return nil
+		}
+		copy(out, v)
+	case checkpoint.F16, checkpoint.BF16:
+		v, err := t.Uint16s()
+		if err != nil {
+			b.errs = append(b.errs, fmt.Sprintf("%s: tensor %q: %v", t.File, b.prefix+name, err))
+			return nil
+		}
+		if t.DType == checkpoint.F16 {
+			kernels.F16ToF32(out, v)
+		} else {
+			kernels.BF16ToF32(out, v)
+		}
+	}
+	return out
+}
+
+func equalShape(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// detectPrefix finds the prefix under which this checkpoint stores the layout's
+// embedding tensor.
+func detectPrefix(cfg *checkpoint.Config, w *checkpoint.Weights) string {
+	embed := map[checkpoint.Family]string{
+		checkpoint.OPT:   "model.decoder.embed_tokens.weight",
+		checkpoint.GPT2:  "wte.weight",
+		checkpoint.Llama: "model.embed_tokens.weight",
+	}[cfg.Family]
+	if _, ok := w.Lookup(embed); ok {
+		return ""
+	}
+	alts := map[checkpoint.Family][]string{
+		checkpoint.GPT2: {"transformer."},
+	}[cfg.Family]
+	for _, p := range alts {
+		if _, ok := w.Lookup(p + embed); ok {
+			return p
+		}
+	}
+	return ""
+}
+
+// bind resolves every tensor of the layout and reports all problems at once.
+func (m *Model) bind() error {
+	cfg := m.Config
+	b := &binder{w: m.weights, used: map[string]bool{}}
+	b.prefix = detectPrefix(cfg, m.weights)
+	d, f, v := cfg.Hidden, cfg.FFN, cfg.VocabSize
+	m.layers = make([]layer, cfg.Layers)
+	switch cfg.Family {
+	case checkpoint.OPT:
+		p := "model.decoder."
+		m.embed = b.mat(p+"embed_tokens.weight", false, v, d)
+		m.pos = b.mat(p+"embed_positions.weight", false, cfg.MaxPositions+cfg.PositionOffset, d)
+		for i := range m.layers {
+			l := &m.layers[i]
+			n := fmt.Sprintf("%slayers.%d.", p, i)
+			l.attnNormW, l.attnNormB = b.vec(n+"self_attn_layer_norm.weight", d), b.vec(n+"self_attn_layer_norm.bias", d)
+			l.q, l.qB = b.mat(n+"self_attn.q_proj.weight", false, d, d), b.vec(n+"self_attn.q_proj.bias", d)
+			l.k, l.kB = b.mat(n+"self_attn.k_proj.weight", false, d, d), b.vec(n+"self_attn.k_proj.bias", d)
+			l.v, l.vB = b.mat(n+"self_attn.v_proj.weight", false, d, d), b.vec(n+"self_attn.v_proj.bias", d)
+			l.o, l.oB = b.mat(n+"self_attn.out_proj.weight", false, d, d), b.vec(n+"self_attn.out_proj.bias", d)
+			l.mlpNormW, l.mlpNormB = b.vec(n+"final_layer_norm.weight", d), b.vec(n+"final_layer_norm.bias", d)
+			l.up, l.upB = b.mat(n+"fc1.weight", false, f, d), b.vec(n+"fc1.bias", f)
+			l.down, l.downB = b.mat(n+"fc2.weight", false, d, f), b.vec(n+"fc2.bias", d)
+		}
+		m.normW, m.normB = b.vec(p+"final_layer_norm.weight", d), b.vec(p+"final_layer_norm.bias", d)
+	case checkpoint.GPT2:
+		m.embed = b.mat("wte.weight", false, v, d)
+		m.pos = b.mat("wpe.weight", false, cfg.MaxPositions, d)
+		for i := range m.layers {
+			l := &m.layers[i]
+			n := fmt.Sprintf("h.%d.", i)
+			l.attnNormW, l.attnNormB = b.vec(n+"ln_1.weight", d), b.vec(n+"ln_1.bias", d)
+			l.qkv, l.qkvB = b.mat(n+"attn.c_attn.weight", true, d, 3*d), b.vec(n+"attn.c_attn.bias", 3*d)
+			l.o, l.oB = b.mat(n+"attn.c_proj.weight", true, d, d), b.vec(n+"attn.c_proj.bias", d)
+			l.mlpNormW, l.mlpNormB = b.vec(n+"ln_2.weight", d), b.vec(n+"ln_2.bias", d)
+			l.up, l.upB = b.mat(n+"mlp.c_fc.weight", true, d, f), b.vec(n+"mlp.c_fc.bias", f)
+			l.down, l.downB = b.mat(n+"mlp.c_proj.weight", true, f, d), b.vec(n+"mlp.c_proj.bias", d)
+		}
+		m.normW, m.normB = b.vec("ln_f.weight", d), b.vec("ln_f.bias", d)
+	case checkpoint.Llama:
+		q, kv := cfg.Heads*cfg.HeadDim, cfg.KVHeads*cfg.HeadDim
+		m.embed = b.mat("model.embed_tokens.weight", false, v, d)
+		for i := range m.layers {
+			l := &m.layers[i]
+			n := fmt.Sprintf("model.layers.%d.", i)
+			l.attnNormW = b.vec(n+"input_layernorm.weight", d)
+			l.q = b.mat(n+"self_attn.q_proj.weight", false, q, d)
+			l.k = b.mat(n+"self_attn.k_proj.weight", false, kv, d)
+			l.v = b.mat(n+"self_attn.v_proj.weight", false, kv, d)
+			l.o = b.mat(n+"self_attn.o_proj.weight", false, d, q)
+			l.mlpNormW = b.vec(n+"post_attention_layernorm.weight", d)
+			l.gate = b.mat(n+"mlp.gate_proj.weight", false, f, d)
+			l.up = b.mat(n+"mlp.up_proj.weight", false, f, d)
+			l.down = b.mat(n+"mlp.down_proj.weight", false, d, f)
+		}
+		m.normW = b.vec("model.norm.weight", d)
+		m.rope = kernels.RopeInvFreq(cfg.HeadDim, cfg.RopeTheta)
+	default:
+		return fmt.Errorf("%s: family %q has no forward pass", m.Dir, cfg.Family)
+	}
+	if cfg.TiedHead {
+		m.head = m.embed
+		if _, ok := m.weights.Lookup(b.prefix + "lm_head.weight"); ok {
+			b.used[b.prefix+"lm_head.weight"] = true // a stored copy of the tied head
+		}
+		if _, ok := m.weights.Lookup("lm_head.weight"); ok {
+			b.used["lm_head.weight"] = true
+		}
+	} else {
+		name := "lm_head.weight"
+		if _, ok := m.weights.Lookup(name); ok && b.prefix != "" {
+			// The head sits outside the body's prefix in open checkpoints.
+			saved := b.prefix
+			b.prefix = ""
+			m.head = b.mat(name, false, v, d)
+			b.prefix = saved
+		} else {
+			m.head = b.mat(name, false, v, d)
+		}
+	}
+	var extra []string
+	for _, n := range m.weights.Names() {
+		if !b.used[n] && !ignorable(cfg.Family, n) {
+			extra = append(extra, n)
+		}
+	}
+	if len(extra) > 0 {
+		sort.Strings(extra)
+		if len(extra) > 5 {
+			extra = append(extra[:5], fmt.Sprintf("and %d more", len(extra)-5))
+		}
+		b.errs = append(b.errs, fmt.Sprintf("unexpected tensors for a %s checkpoint with %d layers: %s; check config.json (model_type, num_hidden_layers)", cfg.Family, cfg.Layers, strings.Join(extra, ", ")))
+	}
+	if len(b.errs) > 0 {
+		if len(b.errs) > 8 {
+			b.errs = append(b.errs[:8], fmt.Sprintf("and %d more problems", len(b.errs)-8))
+		}
+		return fmt.Errorf("%s: the weights do not match config.json:\n  %s", m.Dir, strings.Join(b.errs, "\n  "))
+	}
+	return nil
+}
+
+// ignorable reports buffers that some open checkpoints store beside the
+// parameters (GPT-2's causal-mask buffers, rotary caches).
+func ignorable(f checkpoint.Family, name string) bool {
+	switch {
+	case f == checkpoint.GPT2 && (strings.HasSuffix(name, ".attn.bias") || strings.HasSuffix(name, ".attn.masked_bias")):
+		return true
+	case f == checkpoint.Llama && strings.HasSuffix(name, ".rotary_emb.inv_freq"):
+		return true
+	}
+	return false
+}
+
+// ErrNonFinite marks scores computed from NaN or infinite logits.
+var ErrNonFinite = errors.New("non-finite logits")

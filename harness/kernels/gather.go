@@ -1,0 +1,110 @@
+package kernels
+
+// LinearGather computes, for one input vector, only the outputs listed in
+// idx: y[r] = bias[idx[r]] + Σ_k x[k]·W[idx[r]][k] for r < len(idx), in the
+// order of the package's determinism contract (so y[r] equals element idx[r]
+// of the full Linear). It serves sparse MLP up-projections and per-head
+// query projections. idx must be strictly ascending and within [0, Out);
+// len(x) == In, len(y) == len(idx), bias nil or of length Out. It runs in
+// the calling goroutine.
+func LinearGather(y, x []float32, w *Mat, bias []float32, idx []int32) {
+	w.Check()
+	if len(x) != w.In {
+		panic(msgGatherX)
+	}
+	if len(y) != len(idx) {
+		panic(msgGatherY)
+	}
+	if bias != nil && len(bias) != w.Out {
+		panic(msgGatherBias)
+	}
+	if !ascendingIn(idx, w.Out) {
+		panic(msgGatherIdx)
+	}
+	if len(idx) == 0 {
+		return
+	}
+	if !w.Transposed {
+		var buf [4 * gemvKC]float32
+		rowsDot(y, x, w, bias, buf[:], 0, idx)
+		return
+	}
+	// Stored In×Out: output idx[r] is column idx[r] of every storage row.
+	clear(y)
+	for k, xv := range x {
+		base := k * w.Out
+		for r, j := range idx {
+			y[r] += float32(xv * w.at(base+int(j)))
+		}
+	}
+	if bias != nil {
+		for r, j := range idx {
+			y[r] += bias[j]
+		}
+	}
+}
+
+// LinearScatterIn computes, for one input vector of which only the entries
+// listed in idx are non-zero, y[j] = bias[j] + Σ_r h[r]·W[j][idx[r]] for
+// j < Out, with r ascending and the bias last; y is overwritten. h holds the
+// kept inputs (len(h) == len(idx)); idx must be strictly ascending and
+// within [0, In); len(y) == Out, bias nil or of length Out. It serves sparse
+// MLP down-projections and attention output projections with heads skipped.
+// It runs in the calling goroutine.
+func LinearScatterIn(y, h []float32, w *Mat, bias []float32, idx []int32) {
+	w.Check()
+	if len(h) != len(idx) {
+		panic(msgScatterH)
+	}
+	if len(y) != w.Out {
+		panic(msgScatterY)
+	}
+	if bias != nil && len(bias) != w.Out {
+		panic(msgScatterBias)
+	}
+	if !ascendingIn(idx, w.In) {
+		panic(msgScatterIdx)
+	}
+	if !w.Transposed {
+		// Out×In: output j gathers W[j][idx[r]] along its row.
+		for j := range y {
+			base := j * w.In
+			var acc float32
+			for r, k := range idx {
+				acc += float32(h[r] * w.at(base+int(k)))
+			}
+			if bias != nil {
+				acc += bias[j]
+			}
+			y[j] = acc
+		}
+		return
+	}
+	// Stored In×Out: input idx[r] selects a contiguous storage row.
+	var buf [gemvColsJob]float32
+	for j0 := 0; j0 < w.Out; j0 += gemvColsJob {
+		j1 := min(j0+gemvColsJob, w.Out)
+		acc := y[j0:j1]
+		clear(acc)
+		for r, k := range idx {
+			axpyAcc(h[r], w.storedRange(buf[:], int(k)*w.Out+j0, j1-j0), acc)
+		}
+		if bias != nil {
+			for j := range acc {
+				acc[j] += bias[j0+j]
+			}
+		}
+	}
+}
+
+// ascendingIn reports whether idx is strictly ascending within [0, n).
+func ascendingIn(idx []int32, n int) bool {
+	prev := -1
+	for _, v := range idx {
+		if int(v) <= prev || int(v) >= n {
+			return false
+		}
+		prev = int(v)
+	}
+	return true
+}

@@ -1,0 +1,102 @@
+package kernels
+
+// Chunking of the m == 1 (GEMV) path; fixed, independent of threads.
+const (
+	gemvRowsJob = 64  // output rows per job, Out×In layout
+	gemvColsJob = 256 // output columns per job, In×Out layout
+	gemvKC      = 512 // k extent converted at once for half-precision rows
+)
+
+// gemvRows computes y[j] = bias[j] + Σ_k x[k]·W[j][k] for an Out×In W by
+// streaming its rows: four rows at a time, each with its own single
+// accumulator running in ascending k.
+func gemvRows(y, x []float32, w *Mat, bias []float32, threads int) {
+	nJobs := (w.Out + gemvRowsJob - 1) / gemvRowsJob
+	workers := workerCount(threads, nJobs, w.Out*w.In)
+	runJobs(nJobs, workers, func() func(int) {
+		var buf []float32
+		if w.DType != F32 {
+			buf = make([]float32, 4*gemvKC)
+		}
+		return func(job int) {
+			j0 := job * gemvRowsJob
+			j1 := min(j0+gemvRowsJob, w.Out)
+			rowsDot(y[j0:j1], x, w, bias, buf, j0, nil)
+		}
+	})
+}
+
+// rowsDot sets out[r] = bias[row] + Σ_k x[k]·W[row][k] for the Out×In W,
+// where row = idx[r] when idx is non-nil and row0+r otherwise. buf is
+// conversion scratch of 4*gemvKC floats (unused for F32 weights).
+func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int32) {
+	in := w.In
+	rowOf := func(r int) int {
+		if idx != nil {
+			return int(idx[r])
+		}
+		return row0 + r
+	}
+	r := 0
+	for ; r+4 <= len(out); r += 4 {
+		j0, j1, j2, j3 := rowOf(r), rowOf(r+1), rowOf(r+2), rowOf(r+3)
+		var acc [4]float32
+		if w.DType == F32 {
+			dot4Acc(&acc, x, w.F32[j0*in:], w.F32[j1*in:], w.F32[j2*in:], w.F32[j3*in:])
+		} else {
+			for k0 := 0; k0 < in; k0 += gemvKC {
+				kc := min(gemvKC, in-k0)
+				s0 := w.storedRange(buf[0*gemvKC:], j0*in+k0, kc)
+				s1 := w.storedRange(buf[1*gemvKC:], j1*in+k0, kc)
+				s2 := w.storedRange(buf[2*gemvKC:], j2*in+k0, kc)
+				s3 := w.storedRange(buf[3*gemvKC:], j3*in+k0, kc)
+				dot4Acc(&acc, x[k0:k0+kc], s0, s1, s2, s3)
+			}
+		}
+		for q := range 4 {
+			if bias != nil {
+				acc[q] += bias[rowOf(r+q)]
+			}
+			out[r+q] = acc[q]
+		}
+	}
+	for ; r < len(out); r++ {
+		j := rowOf(r)
+		var acc float32
+		for k0 := 0; k0 < in; k0 += gemvKC {
+			kc := min(gemvKC, in-k0)
+			acc = dotAcc(acc, x[k0:k0+kc], w.storedRange(buf, j*in+k0, kc))
+		}
+		if bias != nil {
+			acc += bias[j]
+		}
+		out[r] = acc
+	}
+}
+
+// gemvCols computes y[j] = bias[j] + Σ_k x[k]·W[j][k] for a W stored In×Out
+// by streaming its storage rows: for each k in ascending order, y += x[k]·row.
+func gemvCols(y, x []float32, w *Mat, bias []float32, threads int) {
+	nJobs := (w.Out + gemvColsJob - 1) / gemvColsJob
+	workers := workerCount(threads, nJobs, w.Out*w.In)
+	runJobs(nJobs, workers, func() func(int) {
+		var buf []float32
+		if w.DType != F32 {
+			buf = make([]float32, gemvColsJob)
+		}
+		return func(job int) {
+			j0 := job * gemvColsJob
+			j1 := min(j0+gemvColsJob, w.Out)
+			acc := y[j0:j1]
+			clear(acc)
+			for k, xv := range x {
+				axpyAcc(xv, w.storedRange(buf, k*w.Out+j0, j1-j0), acc)
+			}
+			if bias != nil {
+				for j := range acc {
+					acc[j] += bias[j0+j]
+				}
+			}
+		}
+	})
+}

@@ -1,0 +1,91 @@
+package kernels
+
+// Mat is a read-only weight matrix of a linear map y = W·x with logical shape
+// Out×In, kept in its stored dtype (weights are memory-mapped from disk and
+// never converted as a whole).
+//
+// Storage is row-major Out×In, or row-major In×Out when Transposed is true
+// (the fused/Conv1D layout some checkpoints use). Exactly one of F32 (DType
+// F32) or Half (raw IEEE binary16 or bfloat16 bit patterns, DType F16 or
+// BF16) holds Out*In values; the other is empty.
+type Mat struct {
+	DType      DType
+	Out, In    int
+	Transposed bool
+	F32        []float32
+	Half       []uint16
+}
+
+// Check panics with a constant "kernels: " message if the dtype is unknown,
+// a dimension is negative, or the storage length disagrees with Out*In.
+func (m *Mat) Check() {
+	if m.Out < 0 || m.In < 0 {
+		panic(msgMatShape)
+	}
+	n := m.Out * m.In
+	switch m.DType {
+	case F32:
+		if len(m.F32) != n || len(m.Half) != 0 {
+			panic(msgMatF32Len)
+		}
+	case F16, BF16:
+		if len(m.Half) != n || len(m.F32) != 0 {
+			panic(msgMatHalfLen)
+		}
+	default:
+		panic(msgMatDType)
+	}
+}
+
+// Row sets dst[k] = W[i][k], the logical row i converted to float32, for
+// k < In. len(dst) must equal In and 0 <= i < Out.
+func (m *Mat) Row(dst []float32, i int) {
+	m.Check()
+	if i < 0 || i >= m.Out {
+		panic(msgRowIndex)
+	}
+	if len(dst) != m.In {
+		panic(msgRowLen)
+	}
+	if !m.Transposed {
+		m.convertRange(dst, i*m.In)
+		return
+	}
+	for k := range dst {
+		dst[k] = m.at(k*m.Out + i)
+	}
+}
+
+// convertRange converts the len(dst) stored values starting at offset off.
+func (m *Mat) convertRange(dst []float32, off int) {
+	switch m.DType {
+	case F32:
+		copy(dst, m.F32[off:off+len(dst)])
+	case F16:
+		f16ToF32Slice(dst, m.Half[off:off+len(dst)])
+	case BF16:
+		bf16ToF32Slice(dst, m.Half[off:off+len(dst)])
+	}
+}
+
+// storedRange returns the stored values [off, off+n) as float32: the backing
+// slice itself for F32, or a conversion into buf (len(buf) >= n) otherwise.
+func (m *Mat) storedRange(buf []float32, off, n int) []float32 {
+	if m.DType == F32 {
+		return m.F32[off : off+n : off+n]
+	}
+	buf = buf[:n]
+	m.convertRange(buf, off)
+	return buf
+}
+
+// at returns stored element p converted to float32.
+func (m *Mat) at(p int) float32 {
+	switch m.DType {
+	case F16:
+		return F16Value(m.Half[p])
+	case BF16:
+		return BF16Value(m.Half[p])
+	}
+	return m.F32[p]
+}

@@ -1,0 +1,37 @@
+package kernels
+
+// Panic messages. They are constants so that callers and tests can match
+// them; every one starts with the package name.
+const (
+	msgMatDType    = "kernels: Mat: unknown DType"
+	msgMatShape    = "kernels: Mat: negative Out or In"
+	msgMatF32Len   = "kernels: Mat: DType F32 needs len(F32) == Out*In and empty Half"
+	msgMatHalfLen  = "kernels: Mat: DType F16/BF16 needs len(Half) == Out*In and empty F32"
+	msgRowIndex    = "kernels: Mat.Row: row index out of range"
+	msgRowLen      = "kernels: Mat.Row: len(dst) != In"
+	msgLinearM     = "kernels: Linear: negative m"
+	msgLinearX     = "kernels: Linear: len(x) != m*In"
+	msgLinearY     = "kernels: Linear: len(y) != m*Out"
+	msgLinearBias  = "kernels: Linear: bias is neither nil nor of length Out"
+	msgThreads     = "kernels: threads < 1"
+	msgGemmShape   = "kernels: Gemm: negative dimension"
+	msgGemmLen     = "kernels: Gemm: len(a) != m*k, len(b) != k*n or len(c) != m*n"
+	msgGatherX     = "kernels: LinearGather: len(x) != In"
+	msgGatherY     = "kernels: LinearGather: len(y) != len(idx)"
+	msgGatherBias  = "kernels: LinearGather: bias is neither nil nor of length Out"
+	msgGatherIdx   = "kernels: LinearGather: idx not ascending, not unique or out of range [0, Out)"
+	msgScatterH    = "kernels: LinearScatterIn: len(h) != len(idx)"
+	msgScatterY    = "kernels: LinearScatterIn: len(y) != Out"
+	msgScatterBias = "kernels: LinearScatterIn: bias is neither nil nor of length Out"
+	msgScatterIdx  = "kernels: LinearScatterIn: idx not ascending, not unique or out of range [0, In)"
+	msgConvLen     = "kernels: conversion: len(dst) != len(src)"
+	msgVecLen      = "kernels: vector op: slice lengths differ"
+	msgArgmaxEmpty = "kernels: Argmax: empty slice"
+	msgNormLen     = "kernels: norm: len(dst), len(gamma) or len(beta) != len(x)"
+	msgRopeHeadDim = "kernels: Rope: headDim must be even and positive"
+	msgRopeLen     = "kernels: Rope: len(x) is not a multiple of headDim"
+	msgRopeFreq    = "kernels: Rope: len(invFreq) != headDim/2"
+	msgRopePos     = "kernels: Rope: negative position"
+	msgRopeTheta   = "kernels: RopeInvFreq: theta must be > 0 and headDim even and positive"
+	msgSiLUMulLen  = "kernels: SiLUMul: len(gate) != len(up)"
+)

@@ -1,0 +1,66 @@
+package kernels
+
+// Dot returns Σ a[i]·b[i], one float32 accumulator in ascending i with each
+// product rounded before it is added (the order Linear uses).
+// len(a) must equal len(b).
+func Dot(a, b []float32) float32 {
+	if len(a) != len(b) {
+		panic(msgVecLen)
+	}
+	return dotAcc(0, a, b)
+}
+
+// Axpy does y[i] += alpha·x[i] (product rounded, then added).
+// len(x) must equal len(y).
+func Axpy(alpha float32, x, y []float32) {
+	if len(x) != len(y) {
+		panic(msgVecLen)
+	}
+	axpyAcc(alpha, x, y)
+}
+
+// Scale does x[i] *= alpha in place.
+func Scale(alpha float32, x []float32) {
+	for i := range x {
+		x[i] *= alpha
+	}
+}
+
+// Add sets dst[i] = a[i] + b[i]; dst may alias a or b. All three lengths
+// must be equal.
+func Add(dst, a, b []float32) {
+	if len(a) != len(dst) || len(b) != len(dst) {
+		panic(msgVecLen)
+	}
+	for i := range dst {
+		dst[i] = a[i] + b[i]
+	}
+}
+
+// Argmax returns the first index of the maximum of x (ties go to the lowest
+// index). A NaN counts as larger than every number, so if x holds a NaN the
+// index of the first NaN is returned. It panics on an empty slice.
+func Argmax(x []float32) int {
+	if len(x) == 0 {
+		panic(msgArgmaxEmpty)
+	}
+	best := 0
+	for i, v := range x {
+		if v != v {
+			return i
+		}
+		if v > x[best] {
+			best = i
+		}
+	}
+	return best
+}
+
+// ReLU does x[i] = max(x[i], 0) in place; NaN stays NaN and -0 becomes +0.
+func ReLU(x []float32) {
+	for i, v := range x {
+		if v <= 0 {
+			x[i] = 0
+		}
+	}
+}

@@ -1,0 +1,100 @@
+package kernels_test
+
+import (
+	"math"
+	"testing"
+
+	"sparsegate/harness/kernels"
+)
+
+func TestDotAxpyScaleAdd(t *testing.T) {
+	r := newRand(30)
+	for _, n := range []int{0, 1, 5, 64, 257} {
+		a, b := randVec(r, n), randVec(r, n)
+		var want float32
+		for i := range a {
+			want += float32(a[i] * b[i])
+		}
+		a0, b0 := clone32(a), clone32(b)
+		if got := kernels.Dot(a, b); math.Float32bits(got) != math.Float32bits(want) {
+			t.Fatalf("Dot n=%d: %v, reference %v", n, got, want)
+		}
+		if bitsEqual(a, a0) >= 0 || bitsEqual(b, b0) >= 0 {
+			t.Fatalf("Dot modified an input")
+		}
+
+		y := clone32(b)
+		ref := clone32(b)
+		for i := range ref {
+			ref[i] += float32(0.37 * a[i])
+		}
+		kernels.Axpy(0.37, a, y)
+		if i := bitsEqual(y, ref); i >= 0 {
+			t.Fatalf("Axpy n=%d: y[%d] = %v, reference %v", n, i, y[i], ref[i])
+		}
+
+		s := clone32(a)
+		kernels.Scale(-1.5, s)
+		for i := range s {
+			if s[i] != -1.5*a[i] {
+				t.Fatalf("Scale: s[%d] = %v, want %v", i, s[i], -1.5*a[i])
+			}
+		}
+
+		g := newGuarded(n)
+		kernels.Add(g.s, a, b)
+		g.check(t, "Add")
+		for i := range g.s {
+			if g.s[i] != a[i]+b[i] {
+				t.Fatalf("Add: %v, want %v", g.s[i], a[i]+b[i])
+			}
+		}
+		// dst aliasing a.
+		c := clone32(a)
+		kernels.Add(c, c, b)
+		for i := range c {
+			if c[i] != a[i]+b[i] {
+				t.Fatalf("Add aliased: %v, want %v", c[i], a[i]+b[i])
+			}
+		}
+	}
+}
+
+func TestArgmax(t *testing.T) {
+	nan := float32(math.NaN())
+	inf := float32(math.Inf(1))
+	cases := []struct {
+		x    []float32
+		want int
+	}{
+		{[]float32{3}, 0},
+		{[]float32{1, 5, 2, 5}, 1},     // tie: lowest index
+		{[]float32{-2, -1, -1}, 1},     // tie: lowest index
+		{[]float32{1, nan, 9, nan}, 1}, // first NaN wins
+		{[]float32{-inf, -inf}, 0},
+		{[]float32{0, inf, 1}, 1},
+		{[]float32{float32(math.Copysign(0, -1)), 0}, 0}, // -0 == +0: a tie
+	}
+	for _, c := range cases {
+		if got := kernels.Argmax(c.x); got != c.want {
+			t.Errorf("Argmax(%v) = %d, want %d", c.x, got, c.want)
+		}
+	}
+}
+
+func TestReLU(t *testing.T) {
+	x := []float32{-1, 0, 2.5, float32(math.Copysign(0, -1)), float32(math.NaN()), float32(math.Inf(-1))}
+	kernels.ReLU(x)
+	want := []float32{0, 0, 2.5, 0}
+	for i, w := range want {
+		if math.Float32bits(x[i]) != math.Float32bits(w) {
+			t.Fatalf("ReLU: x[%d] = %v, want %v", i, x[i], w)
+		}
+	}
+	if x[4] == x[4] {
+		t.Fatalf("ReLU(NaN) = %v, want NaN", x[4])
+	}
+	if x[5] != 0 {
+		t.Fatalf("ReLU(-Inf) = %v, want 0", x[5])
+	}
+}
