@@ -1,85 +1,71 @@
 // Package atomicfile writes files so that readers see either the old content or
 // the complete new content, never a half-written file: data goes to a temporary
 // file in the target's directory, is synced, and is renamed over the target;
-// the directory is synced so the rename survives a crash.
+// the directory is then synced so the rename survives a crash. On any error the
+// temporary file is removed and the target is left as it was.
 package atomicfile
 
 import (
 	"bufio"
-	"errors"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 )
 
-// A File is a pending replacement of a path. Write to it, then Commit; Abort
-// (safe to defer, a no-op after Commit) removes the temporary file.
-type File struct {
-	*bufio.Writer
-	path string
-	tmp  *os.File
-	done bool
-}
-
-// Create starts writing a replacement for path. The directory must exist.
-func Create(path string) (*File, error) {
+// Write replaces path with what fill writes. The directory must exist. The
+// file gets mode 0644.
+func Write(path string, fill func(w io.Writer) error) (err error) {
 	dir := filepath.Dir(path)
 	tmp, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp-*")
 	if err != nil {
-		return nil, fmt.Errorf("creating %s: %w", path, err)
+		return fmt.Errorf("write %s: %w; check that the directory exists and is writable", path, err)
 	}
-	return &File{Writer: bufio.NewWriterSize(tmp, 1<<20), path: path, tmp: tmp}, nil
-}
-
-// Commit flushes, syncs and renames the temporary file over the target.
-func (f *File) Commit() error {
-	if f.done {
-		return errors.New("atomicfile: Commit after Commit or Abort")
+	closed, renamed := false, false
+	defer func() {
+		if !closed {
+			_ = tmp.Close()
+		}
+		if !renamed {
+			_ = os.Remove(tmp.Name())
+		}
+	}()
+	bw := bufio.NewWriterSize(tmp, 1<<20)
+	if err := fill(bw); err != nil {
+		return fmt.Errorf("write %s: %w; check free disk space", path, err)
 	}
-	f.done = true
-	err := f.Flush()
-	if err == nil {
-		err = f.tmp.Sync()
+	if err := bw.Flush(); err != nil {
+		return fmt.Errorf("write %s: %w; check free disk space", path, err)
 	}
-	if cerr := f.tmp.Close(); err == nil {
-		err = cerr
+	if err := tmp.Chmod(0o644); err != nil {
+		return fmt.Errorf("write %s: %w", path, err)
 	}
-	if err == nil {
-		err = os.Chmod(f.tmp.Name(), 0o644)
+	if err := tmp.Sync(); err != nil {
+		return fmt.Errorf("sync %s: %w", path, err)
 	}
-	if err == nil {
-		err = os.Rename(f.tmp.Name(), f.path)
+	closed = true
+	if err := tmp.Close(); err != nil {
+		return fmt.Errorf("close %s: %w", path, err)
 	}
+	if err := os.Rename(tmp.Name(), path); err != nil {
+		return fmt.Errorf("write %s: %w; remove whatever is in the way", path, err)
+	}
+	renamed = true
+	d, err := os.Open(dir)
 	if err != nil {
-		os.Remove(f.tmp.Name())
-		return fmt.Errorf("writing %s: %w", f.path, err)
+		return fmt.Errorf("sync directory of %s: %w", path, err)
 	}
-	if d, derr := os.Open(filepath.Dir(f.path)); derr == nil {
-		d.Sync() // best effort: some filesystems refuse to sync directories
-		d.Close()
+	defer d.Close()
+	if err := d.Sync(); err != nil {
+		return fmt.Errorf("sync directory of %s: %w", path, err)
 	}
 	return nil
 }
 
-// Abort discards the pending file. It is a no-op after Commit.
-func (f *File) Abort() {
-	if f.done {
-		return
-	}
-	f.done = true
-	f.tmp.Close()
-	os.Remove(f.tmp.Name())
-}
-
-// WriteFile replaces path with data atomically.
+// WriteFile replaces path with data.
 func WriteFile(path string, data []byte) error {
-	f, err := Create(path)
-	if err != nil {
+	return Write(path, func(w io.Writer) error {
+		_, err := w.Write(data)
 		return err
-	}
-	defer f.Abort()
-	if _, err := f.Write(data); err != nil {
-		return fmt.Errorf("writing %s: %w", path, err)
-	}
-	return f.Commit()
+	})
 }

@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
 )
@@ -70,7 +71,7 @@ func WriteSharded(dir string, tensors []NamedTensor, metadata map[string]string,
 	if err := enc.Encode(index); err != nil {
 		return errors.Join(fmt.Errorf("%s: encode index: %w", dir, err), removeAll(written))
 	}
-	err := writeAtomic(filepath.Join(dir, IndexFileName), func(f *os.File) error {
+	err := writeAtomic(filepath.Join(dir, IndexFileName), func(f io.Writer) error {
 		_, err := f.Write(buf.Bytes())
 		return err
 	})

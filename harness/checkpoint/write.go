@@ -5,11 +5,12 @@ import (
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
+	"io"
 	"math"
-	"os"
-	"path/filepath"
 	"sort"
 	"unicode/utf8"
+
+	"sparsegate/harness/atomicfile"
 )
 
 // NamedTensor is one tensor to write: name, dtype, shape and its raw
@@ -42,7 +43,7 @@ func Write(path string, tensors []NamedTensor, metadata map[string]string) error
 	if err != nil {
 		return err
 	}
-	return writeAtomic(path, func(f *os.File) error {
+	return writeAtomic(path, func(f io.Writer) error {
 		if _, err := f.Write(prefix); err != nil {
 			return err
 		}
@@ -166,47 +167,10 @@ func appendJSONString(buf *bytes.Buffer, s string) {
 	buf.Truncate(buf.Len() - 1) // drop the Encoder's newline
 }
 
-// writeAtomic creates path through a synced temporary file in the same
-// directory and a rename, removing the temporary file on any error.
-func writeAtomic(path string, fill func(*os.File) error) (err error) {
-	dir := filepath.Dir(path)
-	tmp, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp-*")
-	if err != nil {
-		return fmt.Errorf("checkpoint: write %s: %w; check that the directory exists and is writable", path, err)
-	}
-	closed, renamed := false, false
-	defer func() {
-		if !closed {
-			_ = tmp.Close()
-		}
-		if !renamed {
-			_ = os.Remove(tmp.Name())
-		}
-	}()
-	if err := fill(tmp); err != nil {
-		return fmt.Errorf("checkpoint: write %s: %w; check free disk space", path, err)
-	}
-	if err := tmp.Chmod(0o644); err != nil {
-		return fmt.Errorf("checkpoint: write %s: %w", path, err)
-	}
-	if err := tmp.Sync(); err != nil {
-		return fmt.Errorf("checkpoint: sync %s: %w", path, err)
-	}
-	closed = true
-	if err := tmp.Close(); err != nil {
-		return fmt.Errorf("checkpoint: close %s: %w", path, err)
-	}
-	if err := os.Rename(tmp.Name(), path); err != nil {
-		return fmt.Errorf("checkpoint: write %s: %w; remove whatever is in the way", path, err)
-	}
-	renamed = true
-	d, err := os.Open(dir)
-	if err != nil {
-		return fmt.Errorf("checkpoint: sync directory of %s: %w", path, err)
-	}
-	defer d.Close()
-	if err := d.Sync(); err != nil {
-		return fmt.Errorf("checkpoint: sync directory of %s: %w", path, err)
+// writeAtomic writes path through atomicfile, with the package's prefix.
+func writeAtomic(path string, fill func(io.Writer) error) error {
+	if err := atomicfile.Write(path, fill); err != nil {
+		return fmt.Errorf("checkpoint: %w", err)
 	}
 	return nil
 }

@@ -303,12 +303,12 @@ func TestSlidingWindowScoresEveryTokenOnce(t *testing.T) {
 	full, err := m.LogProbs(toks, nil)
 	require.NoError(t, err)
 	// A window longer than the text is one pass: identical to LogProbs.
-	lp, wins, err := m.SlidingLogProbs(toks, 64, 32, nil)
+	lp, wins, err := m.SlidingLogProbs(toks, SlidingOptions{Window: 64, Stride: 32})
 	require.NoError(t, err)
 	require.Equal(t, full, lp)
 	require.Len(t, wins, 1)
 	// Short windows: every target scored exactly once, windows tile the text.
-	lp, wins, err = m.SlidingLogProbs(toks, 16, 8, nil)
+	lp, wins, err = m.SlidingLogProbs(toks, SlidingOptions{Window: 16, Stride: 8})
 	require.NoError(t, err)
 	require.Len(t, lp, len(toks)-1)
 	next := 1
@@ -324,7 +324,7 @@ func TestSlidingWindowScoresEveryTokenOnce(t *testing.T) {
 	}
 	// Later ones differ (less context).
 	require.NotEqual(t, full[40], lp[40])
-	_, _, err = m.SlidingLogProbs(toks, 16, 16, nil)
+	_, _, err = m.SlidingLogProbs(toks, SlidingOptions{Window: 16, Stride: 16})
 	require.ErrorContains(t, err, "stride 16")
 }
 

@@ -192,12 +192,26 @@ type Window struct {
 	Start, End, First int
 }
 
+// SlidingOptions configure sliding-window scoring.
+type SlidingOptions struct {
+	// Window is the most tokens one forward pass sees (2 … MaxPositions).
+	Window int
+	// Stride is how far each window starts after the previous (1 … Window-1).
+	Stride int
+	// Hook restricts units per token; nil runs dense.
+	Hook Hook
+	// Progress, when set, is called after each window with the number of
+	// targets scored so far and the total.
+	Progress func(scored, total int)
+}
+
 // SlidingLogProbs scores a long token sequence with a sliding window: windows
 // of at most window tokens start every stride tokens, each run from scratch,
 // and each target token is scored once, in the first window that holds it
 // with at least one token of context, so every token but the first is scored
 // exactly once. lp[i] is log P(tokens[i+1] | its window's tokens before it).
-func (m *Model) SlidingLogProbs(tokens []int, window, stride int, hook Hook) (lp []float64, windows []Window, err error) {
+func (m *Model) SlidingLogProbs(tokens []int, opts SlidingOptions) (lp []float64, windows []Window, err error) {
+	window, stride, hook := opts.Window, opts.Stride, opts.Hook
 	if window < 2 || window > m.Config.MaxPositions {
 		return nil, nil, fmt.Errorf("window %d must be between 2 and the model's %d positions", window, m.Config.MaxPositions)
 	}
@@ -242,6 +256,9 @@ func (m *Model) SlidingLogProbs(tokens []int, window, stride int, hook Hook) (lp
 		}
 		windows = append(windows, Window{Start: start, End: end, First: first})
 		scored = end
+		if opts.Progress != nil {
+			opts.Progress(scored-1, n-1)
+		}
 	}
 	return lp, windows, nil
 }

@@ -13,7 +13,10 @@
 // before it is added (multiply, then add: two roundings, never a fused
 // multiply-add in the pure-Go path; the code writes float32(a*b) so that the
 // compiler may not fuse). The bias, when given, is added last. [LinearScatterIn]
-// does the same over ascending r, bias last.
+// does the same over ascending r, bias last. The float64 helpers (norm
+// statistics, activations) use explicit conversions the same way, so a
+// build that may fuse (GOAMD64=v3, arm64) gives the same bits as one that
+// cannot.
 //
 // Therefore results are bit-identical for any thread count, any number of
 // rows m (a row computed inside a 512-row product equals the same row

@@ -14,6 +14,7 @@ import (
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/kernels"
+	"sparsegate/harness/tokenize"
 )
 
 // Options choose how a synthetic checkpoint is written.
@@ -140,4 +141,29 @@ func OPT125M() *checkpoint.Config {
 	return &checkpoint.Config{Family: checkpoint.OPT, VocabSize: 50272, Hidden: 768, Layers: 12, Heads: 12,
 		KVHeads: 12, HeadDim: 64, FFN: 3072, MaxPositions: 2048, PositionOffset: 2, NormEps: 1e-5,
 		Activation: "relu", TiedHead: true, BOS: 2, EOS: 2, PAD: 1}
+}
+
+// WithTokenizer trains a byte-level BPE tokenizer of vocab ids on corpus (with
+// "<s>", "</s>" and "<pad>" specials; BOS prepended, as OPT-style checkpoints
+// do), saves it into dir, and sets cfg's vocabulary size and special ids to
+// match. Call it before Write.
+func WithTokenizer(dir string, cfg *checkpoint.Config, corpus []string, vocab int) error {
+	tok, err := tokenize.Train(corpus, tokenize.TrainOptions{
+		VocabSize: vocab, Specials: []string{"<s>", "<pad>", "</s>"},
+		AddBOS: true, BOS: "</s>", EOS: "</s>", PAD: "<pad>",
+	})
+	if err != nil {
+		return fmt.Errorf("training the synthetic tokenizer: %w", err)
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return err
+	}
+	if err := tok.Save(dir); err != nil {
+		return err
+	}
+	cfg.VocabSize = max(cfg.VocabSize, tok.VocabSize())
+	cfg.BOS, _ = tok.BOS()
+	cfg.EOS, _ = tok.EOS()
+	cfg.PAD, _ = tok.PAD()
+	return nil
 }

@@ -26,6 +26,25 @@
 // optional tokenizer_config.json and special_tokens_map.json name the BOS,
 // EOS, PAD and UNK tokens; for each name tokenizer_config.json wins and
 // special_tokens_map.json only fills in names the former does not give.
+// In the two-file layout tokenizer_config.json's add_prefix_space and
+// added_tokens_decoder are read too; with tokenizer.json its own
+// pre_tokenizer and added_tokens govern and those fields are ignored.
+//
+// The vocabulary's ids must be exactly 0..n-1 and hold all 256 one-byte
+// symbols; every merge's two symbols and its result must be vocabulary
+// entries, and a merge may not repeat. Added tokens may reuse a vocabulary
+// id or extend past it. Only the supported parts of tokenizer.json load:
+// a null normalizer, a ByteLevel pre-tokenizer (use_regex false makes each
+// text segment one chunk), a BPE model without dropout or affixes
+// (ignore_merges is honoured), a ByteLevel or null decoder. Anything else
+// is an error naming the file and the field.
+//
+// When a TemplateProcessing post-processor governs and no configuration
+// file names a BOS (EOS), BOS() (EOS()) reports the template's first
+// prepended (last appended) token.
+//
+// Decode concatenates the tokens' bytes; when the pre-tokenizer adds a
+// prefix space, that space is part of the decoded text.
 //
 // # Which special tokens the model sees (EncodeForModel)
 //

@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"strconv"
+	"strings"
 )
 
 // isNull reports whether a raw JSON value is absent or null.
@@ -38,6 +39,8 @@ func jsonErr(file string, data []byte, err error) error {
 	var se *json.SyntaxError
 	var te *json.UnmarshalTypeError
 	switch {
+	case errors.As(err, &se) && strings.Contains(se.Error(), "unexpected end of JSON input"):
+		return errAt(file, fmt.Sprintf("byte offset %d", se.Offset), "JSON ends early (%v); the file is truncated: re-export it", se)
 	case errors.As(err, &se):
 		l, c := lineCol(data, se.Offset)
 		return errAt(file, fmt.Sprintf("line %d, column %d (byte offset %d)", l, c, se.Offset), "invalid JSON: %v; fix the syntax or re-export the file", se)

@@ -176,7 +176,6 @@ func (t *Tokenizer) applyConfig(spec *loadSpec, cfg *config) error {
 			}
 		}
 		t.prefix, t.suffix = spec.prefix, spec.suffix
-		t.addRule = "tokenizer.json post_processor"
 		if t.bos < 0 && len(t.prefix) > 0 {
 			t.bos = t.prefix[0]
 		}
@@ -185,7 +184,6 @@ func (t *Tokenizer) applyConfig(spec *loadSpec, cfg *config) error {
 		}
 		return nil
 	}
-	t.addRule = fileTokenizerConfig
 	if cfg.addBOS {
 		if t.bos < 0 {
 			return errAt(cfg.file, "field add_bos_token", "is true but no bos_token is configured; set bos_token or make add_bos_token false")

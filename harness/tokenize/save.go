@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+
+	"sparsegate/harness/atomicfile"
 )
 
 // Save writes tokenizer.json and tokenizer_config.json into dir (created if
@@ -26,7 +28,7 @@ func (t *Tokenizer) Save(dir string) error {
 	if err := writeAtomic(filepath.Join(dir, fileTokenizerConfig), cfg); err != nil {
 		return err
 	}
-	return syncDir(dir)
+	return nil
 }
 
 // jstr renders a JSON string.
@@ -158,48 +160,11 @@ func (t *Tokenizer) configJSON() ([]byte, error) {
 	return append(b, '\n'), nil
 }
 
-// writeAtomic writes data to path via a temp file in the same directory,
-// fsyncs it and renames it over path.
+// writeAtomic writes data to path through atomicfile (temp file, fsync,
+// rename, directory fsync).
 func writeAtomic(path string, data []byte) error {
-	f, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp-*")
-	if err != nil {
-		return fmt.Errorf("tokenize: Save %s: %w", path, err)
-	}
-	tmp := f.Name()
-	fail := func(err error) error {
-		f.Close()
-		os.Remove(tmp)
-		return fmt.Errorf("tokenize: Save %s: %w", path, err)
-	}
-	if _, err := f.Write(data); err != nil {
-		return fail(err)
-	}
-	if err := f.Sync(); err != nil {
-		return fail(err)
-	}
-	if err := f.Chmod(0o644); err != nil {
-		return fail(err)
-	}
-	if err := f.Close(); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("tokenize: Save %s: %w", path, err)
-	}
-	if err := os.Rename(tmp, path); err != nil {
-		os.Remove(tmp)
-		return fmt.Errorf("tokenize: Save %s: %w", path, err)
-	}
-	return nil
-}
-
-// syncDir fsyncs a directory so the renames are durable.
-func syncDir(dir string) error {
-	d, err := os.Open(dir)
-	if err != nil {
+	if err := atomicfile.WriteFile(path, data); err != nil {
 		return fmt.Errorf("tokenize: Save: %w", err)
-	}
-	defer d.Close()
-	if err := d.Sync(); err != nil {
-		return fmt.Errorf("tokenize: Save: sync %s: %w", dir, err)
 	}
 	return nil
 }

@@ -37,7 +37,6 @@ type Tokenizer struct {
 	ignoreMerges   bool
 
 	prefix, suffix []int // ids EncodeForModel adds
-	addRule        string
 
 	bos, eos, pad, unk int // -1 when not configured
 
