@@ -30,7 +30,7 @@ const (
 )
 
 // Families lists the supported families in a fixed order, for messages.
-var Families = []Family{OPT, GPT2, Llama}
+func Families() []Family { return []Family{OPT, GPT2, Llama} }
 
 // A Config is the architecture of a checkpoint, read from its config.json and
 // normalised across families. Fields that a family does not use are zero.
@@ -188,8 +188,9 @@ func ParseConfig(b []byte) (*Config, error) {
 }
 
 func familyList() string {
-	names := make([]string, len(Families))
-	for i, f := range Families {
+	fams := Families()
+	names := make([]string, len(fams))
+	for i, f := range fams {
 		names[i] = string(f)
 	}
 	return strings.Join(names, ", ")

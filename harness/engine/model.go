@@ -136,7 +136,7 @@ func (b *binder) tensor(name string, shape ...int) *checkpoint.Tensor {
 	full := b.prefix + name
 	t, ok := b.w.Lookup(full)
 	if !ok {
-		b.errs = append(b.errs, fmt.Sprintf("tensor %q is missing", full))
+		b.errs = append(b.errs, fmt.Sprintf("tensor %q is missing from %s", full, strings.Join(baseNames(b.w.Files()), ", ")))
 		return nil
 	}
 	b.used[full] = true
@@ -209,6 +209,14 @@ func (b *binder) vec(name string, n int) []float32 {
 		} else {
 			kernels.BF16ToF32(out, v)
 		}
+	}
+	return out
+}
+
+func baseNames(paths []string) []string {
+	out := make([]string, len(paths))
+	for i, p := range paths {
+		out[i] = filepath.Base(p)
 	}
 	return out
 }

@@ -71,8 +71,6 @@ type NonFinite struct {
 	Count, First int
 }
 
-var layerRE = regexp.MustCompile(`(?:^|\.)(?:layers|h)\.(\d+)\.`)
-
 // Inspect loads the checkpoint (checking it fully, as a run would) and
 // describes it. Every weight is scanned for NaN and Inf.
 func Inspect(dir string) (*Report, error) {
@@ -86,6 +84,7 @@ func Inspect(dir string) (*Report, error) {
 	if r.SHA256, err = w.SHA256(); err != nil {
 		return nil, err
 	}
+	layerRE := regexp.MustCompile(`(?:^|\.)(?:layers|h)\.(\d+)\.`)
 	sizes := map[string]int64{}
 	groups := map[int][]Tensor{}
 	var other []Tensor
@@ -128,10 +127,17 @@ func Inspect(dir string) (*Report, error) {
 	return r, nil
 }
 
-var familyNotes = map[checkpoint.Family]string{
-	checkpoint.OPT:   "pre-LayerNorm, learned positions (offset 2), biases",
-	checkpoint.GPT2:  "pre-LayerNorm, learned positions, fused QKV (Conv1D layout)",
-	checkpoint.Llama: "RMSNorm, rotary positions, SwiGLU MLP, grouped-query attention",
+// familyNote says in a few words how the family's blocks are built.
+func familyNote(f checkpoint.Family) string {
+	switch f {
+	case checkpoint.OPT:
+		return "pre-LayerNorm, learned positions (offset 2), biases"
+	case checkpoint.GPT2:
+		return "pre-LayerNorm, learned positions, fused QKV (Conv1D layout)"
+	case checkpoint.Llama:
+		return "RMSNorm, rotary positions, SwiGLU MLP, grouped-query attention"
+	}
+	return ""
 }
 
 // WriteText prints the report for a person. Layers whose tensors have the same
@@ -140,7 +146,7 @@ func (r *Report) WriteText(w io.Writer) error {
 	c := r.Config
 	p := &printer{w: w}
 	p.f("checkpoint   %s\n", r.Dir)
-	p.f("family       %s (%s)\n", c.Family, familyNotes[c.Family])
+	p.f("family       %s (%s)\n", c.Family, familyNote(c.Family))
 	p.f("parameters   %s\n", thousands(r.Params))
 	head := "untied head"
 	if c.TiedHead {
