@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"encoding/binary"
 	"os"
 	"path/filepath"
 	"strings"
@@ -121,6 +122,14 @@ func TestBadInputExitsTwo(t *testing.T) {
 		{"tokenizer larger than embedding", edit("config.json", func(b []byte) []byte {
 			return []byte(strings.Replace(string(b), `"vocab_size": 320`, `"vocab_size": 300`, 1))
 		}), inspectArgs, "300"},
+		{"overlapping spans", func(t *testing.T, dir string) {
+			// A hand-made safetensors file (format specification: u64 header
+			// length, JSON header, data) whose two tensors share bytes 4..8.
+			hdr := `{"a":{"dtype":"F32","shape":[2],"data_offsets":[0,8]},"b":{"dtype":"F32","shape":[2],"data_offsets":[4,12]}}`
+			b := binary.LittleEndian.AppendUint64(nil, uint64(len(hdr)))
+			b = append(append(b, hdr...), make([]byte, 12)...)
+			require.NoError(t, os.WriteFile(filepath.Join(dir, "model.safetensors"), b, 0o644))
+		}, inspectArgs, `tensor "b": data_offsets [4, 12] overlap tensor "a"`},
 		{"score without text flag", func(*testing.T, string) {}, func(dir string) []string { return []string{"score", "--model", dir} }, "--text FILE is required"},
 		{"score with missing text", func(*testing.T, string) {}, func(dir string) []string {
 			return []string{"score", "--model", dir, "--text", filepath.Join(dir, "nope.txt")}
@@ -141,7 +150,8 @@ func TestBadInputExitsTwo(t *testing.T) {
 
 func TestInspectReportsNaNWeights(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "m")
-	code, _, errs := sparsegate(t, "synth", "--out", dir)
+	text := "../../harness/synth/testdata/sample.txt"
+	code, _, errs := sparsegate(t, "synth", "--out", dir, "--tokenizer-text", text)
 	require.Equal(t, 0, code, errs)
 	// Plant a NaN (f32 0x7fc00000, little-endian) in the last tensor's data.
 	p := filepath.Join(dir, "model.safetensors")
@@ -153,4 +163,9 @@ func TestInspectReportsNaNWeights(t *testing.T) {
 	require.Equal(t, 2, code)
 	require.Contains(t, out, "1 values, first at element")
 	require.Contains(t, errs, "hold NaN or Inf")
+	// Scoring fails loudly instead of printing a NaN perplexity.
+	code, out, errs = sparsegate(t, "score", "--model", dir, "--text", text)
+	require.Equal(t, 2, code)
+	require.Empty(t, out)
+	require.Contains(t, errs, "non-finite logits")
 }
