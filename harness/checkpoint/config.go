@@ -107,6 +107,7 @@ type rawConfig struct {
 	NInner  *int     `json:"n_inner"`
 	LNEps   *float64 `json:"layer_norm_epsilon"`
 	ScaleAW *bool    `json:"scale_attn_weights"`
+	InvIdx  *bool    `json:"scale_attn_by_inverse_layer_idx"`
 }
 
 // intList accepts an int or a list of ints (some configs list several EOS ids).
@@ -120,7 +121,7 @@ func (l *intList) UnmarshalJSON(b []byte) error {
 	}
 	var many []int
 	if err := json.Unmarshal(b, &many); err != nil {
-		return fmt.Errorf("want an integer or a list of integers, got %s", bytes.TrimSpace(b))
+		return fmt.Errorf(`field "eos_token_id": want an integer or a list of integers, got %s`, bytes.TrimSpace(b))
 	}
 	*l = many
 	return nil
@@ -142,6 +143,9 @@ func LoadConfig(path string) (*Config, error) {
 
 // ParseConfig parses the bytes of a config.json; errors carry no file name.
 func ParseConfig(b []byte) (*Config, error) {
+	if t := bytes.TrimLeft(b, " \t\r\n"); len(t) > 0 && t[0] != '{' {
+		return nil, errors.New("config.json must hold a JSON object ({...}) of model settings")
+	}
 	var r rawConfig
 	if err := json.Unmarshal(b, &r); err != nil {
 		var se *json.SyntaxError
@@ -153,7 +157,7 @@ func ParseConfig(b []byte) (*Config, error) {
 		if errors.As(err, &te) {
 			return nil, fmt.Errorf("field %q: wrong type: want %s, got JSON %s", te.Field, te.Type, te.Value)
 		}
-		return nil, fmt.Errorf("invalid JSON: %w", err)
+		return nil, err
 	}
 	c := &Config{BOS: -1, EOS: -1, PAD: -1}
 	if r.BOS != nil {
@@ -161,6 +165,13 @@ func ParseConfig(b []byte) (*Config, error) {
 	}
 	if r.EOS != nil && len(*r.EOS) > 0 {
 		c.EOS = (*r.EOS)[0]
+		if r.VocabSize != nil {
+			for _, id := range *r.EOS {
+				if id < 0 || id >= *r.VocabSize {
+					return nil, fmt.Errorf("eos_token_id %d is outside the vocabulary of %d tokens", id, *r.VocabSize)
+				}
+			}
+		}
 	}
 	if r.PAD != nil {
 		c.PAD = *r.PAD
@@ -277,6 +288,9 @@ func (c *Config) fromGPT2(r *rawConfig) error {
 	if r.ScaleAW != nil && !*r.ScaleAW {
 		return errors.New(`field "scale_attn_weights": false is not supported`)
 	}
+	if r.InvIdx != nil && *r.InvIdx {
+		return errors.New(`field "scale_attn_by_inverse_layer_idx": true is not supported; only the standard 1/sqrt(head size) scaling runs`)
+	}
 	c.KVHeads = c.Heads
 	if c.Heads > 0 {
 		c.HeadDim = c.Hidden / c.Heads
@@ -316,6 +330,8 @@ func (c *Config) fromLlama(r *rawConfig) error {
 	}
 	if r.HeadDim != nil {
 		c.HeadDim = *r.HeadDim
+	} else if c.Heads > 0 && c.Hidden%c.Heads != 0 {
+		return fmt.Errorf("hidden size (hidden_size) %d is not divisible by the head count (num_attention_heads) %d; give head_dim explicitly", c.Hidden, c.Heads)
 	}
 	c.NormEps = 1e-6
 	if r.RMSNormEps != nil {
@@ -342,44 +358,75 @@ func (c *Config) fromLlama(r *rawConfig) error {
 	return nil
 }
 
+// jsonKey names the config.json field that holds a quantity in the family's
+// layout, for messages.
+func jsonKey(f Family, q string) string {
+	keys := map[string][3]string{ // opt, gpt2, llama
+		"vocab":     {"vocab_size", "vocab_size", "vocab_size"},
+		"hidden":    {"hidden_size", "n_embd", "hidden_size"},
+		"layers":    {"num_hidden_layers", "n_layer", "num_hidden_layers"},
+		"heads":     {"num_attention_heads", "n_head", "num_attention_heads"},
+		"kvheads":   {"num_attention_heads", "n_head", "num_key_value_heads"},
+		"headdim":   {"hidden_size / num_attention_heads", "n_embd / n_head", "head_dim"},
+		"ffn":       {"ffn_dim", "n_inner", "intermediate_size"},
+		"positions": {"max_position_embeddings", "n_positions", "max_position_embeddings"},
+		"eps":       {"layer norm epsilon", "layer_norm_epsilon", "rms_norm_eps"},
+		"act":       {"activation_function", "activation_function", "hidden_act"},
+	}[q]
+	switch f {
+	case OPT:
+		return keys[0]
+	case GPT2:
+		return keys[1]
+	}
+	return keys[2]
+}
+
 // Validate checks that the sizes are positive and consistent with each other.
+// Messages name the config.json field of the family's layout in parentheses.
 func (c *Config) Validate() error {
+	k := func(q string) string { return jsonKey(c.Family, q) }
 	pos := []struct {
 		v    int
 		name string
+		key  string
 	}{
-		{c.VocabSize, "vocabulary size"}, {c.Hidden, "hidden size"}, {c.Layers, "layer count"},
-		{c.Heads, "head count"}, {c.KVHeads, "key/value head count"}, {c.HeadDim, "head size"},
-		{c.FFN, "MLP width"}, {c.MaxPositions, "maximum positions"},
+		{c.VocabSize, "vocabulary size", "vocab"}, {c.Hidden, "hidden size", "hidden"}, {c.Layers, "layer count", "layers"},
+		{c.Heads, "head count", "heads"}, {c.KVHeads, "key/value head count", "kvheads"}, {c.HeadDim, "head size", "headdim"},
+		{c.FFN, "MLP width", "ffn"}, {c.MaxPositions, "maximum positions", "positions"},
 	}
 	for _, p := range pos {
 		if p.v <= 0 {
-			return fmt.Errorf("%s is %d; it must be positive", p.name, p.v)
+			return fmt.Errorf("%s (%s) is %d; it must be positive", p.name, k(p.key), p.v)
 		}
 	}
 	if c.Family != Llama && c.Heads*c.HeadDim != c.Hidden {
-		return fmt.Errorf("hidden size %d is not divisible by the head count %d", c.Hidden, c.Heads)
+		return fmt.Errorf("hidden size (%s) %d is not divisible by the head count (%s) %d", k("hidden"), c.Hidden, k("heads"), c.Heads)
 	}
 	if c.Heads%c.KVHeads != 0 {
-		return fmt.Errorf("head count %d is not a multiple of the key/value head count %d", c.Heads, c.KVHeads)
+		return fmt.Errorf("head count (%s) %d is not a multiple of the key/value head count (%s) %d", k("heads"), c.Heads, k("kvheads"), c.KVHeads)
 	}
 	if c.Family == Llama && c.HeadDim%2 != 0 {
-		return fmt.Errorf("head size %d is odd; rotary positions need an even head size", c.HeadDim)
+		return fmt.Errorf("head size (%s) %d is odd; rotary positions need an even head size", k("headdim"), c.HeadDim)
 	}
-	want := map[Family][]string{
-		OPT:   {"relu", "gelu", "gelu_new", "silu"},
-		GPT2:  {"gelu_new", "gelu", "relu", "silu"},
-		Llama: {"silu"},
-	}[c.Family]
+	var want []string
+	switch c.Family {
+	case OPT:
+		want = []string{"relu", "gelu", "gelu_new", "silu"}
+	case GPT2:
+		want = []string{"gelu_new", "gelu", "relu", "silu"}
+	case Llama:
+		want = []string{"silu"}
+	}
 	ok := false
 	for _, a := range want {
 		ok = ok || a == c.Activation
 	}
 	if !ok {
-		return fmt.Errorf("activation %q is not supported for the %s family; supported: %s", c.Activation, c.Family, strings.Join(want, ", "))
+		return fmt.Errorf("activation (%s) %q is not supported for the %s family; supported: %s", k("act"), c.Activation, c.Family, strings.Join(want, ", "))
 	}
 	if !(c.NormEps > 0) {
-		return fmt.Errorf("norm epsilon %g must be positive", c.NormEps)
+		return fmt.Errorf("norm epsilon (%s) %g must be positive", k("eps"), c.NormEps)
 	}
 	if c.Family == Llama && !(c.RopeTheta > 0) {
 		return fmt.Errorf("rope_theta %g must be positive", c.RopeTheta)
@@ -536,8 +583,10 @@ func (c *Config) TensorSpecs() []TensorSpec {
 	return s
 }
 
-// lineCol turns a byte offset into a 1-based line and column.
+// lineCol turns the offset a json.SyntaxError reports (the bytes read,
+// including the offending one) into the 1-based line and column of that byte.
 func lineCol(b []byte, off int64) (int, int) {
+	off = max(0, off-1)
 	if off > int64(len(b)) {
 		off = int64(len(b))
 	}
