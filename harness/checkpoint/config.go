@@ -10,6 +10,7 @@ import (
 
 	"sort"
 	"sparsegate/harness/atomicfile"
+	"sparsegate/harness/jsonpos"
 	"strings"
 )
 
@@ -150,7 +151,7 @@ func ParseConfig(b []byte) (*Config, error) {
 	if err := json.Unmarshal(b, &r); err != nil {
 		var se *json.SyntaxError
 		if errors.As(err, &se) {
-			line, col := lineCol(b, se.Offset)
+			line, col := jsonpos.OfSyntaxError(b, se)
 			return nil, fmt.Errorf("%d:%d: invalid JSON: %v", line, col, err)
 		}
 		var te *json.UnmarshalTypeError
@@ -207,32 +208,35 @@ func familyList() string {
 	return strings.Join(names, ", ")
 }
 
-// need copies a required integer field, or reports it missing.
-func need(dst *int, src *int, field string) error {
-	if src == nil {
-		return fmt.Errorf("field %q is missing", field)
+// required is one integer field that config.json must have.
+type required struct {
+	dst   *int
+	src   *int
+	field string
+}
+
+// needAll copies required integer fields, or reports the first one missing.
+func needAll(fields ...required) error {
+	for _, f := range fields {
+		if f.src == nil {
+			return fmt.Errorf("field %q is missing", f.field)
+		}
+		*f.dst = *f.src
 	}
-	*dst = *src
 	return nil
 }
 
 func (c *Config) fromOPT(r *rawConfig) error {
 	c.Family = OPT
-	for _, f := range []struct {
-		dst   *int
-		src   *int
-		field string
-	}{
-		{&c.VocabSize, r.VocabSize, "vocab_size"},
-		{&c.Hidden, r.HiddenSize, "hidden_size"},
-		{&c.Layers, r.NumLayers, "num_hidden_layers"},
-		{&c.Heads, r.NumHeads, "num_attention_heads"},
-		{&c.FFN, r.FFNDim, "ffn_dim"},
-		{&c.MaxPositions, r.MaxPositions, "max_position_embeddings"},
-	} {
-		if err := need(f.dst, f.src, f.field); err != nil {
-			return err
-		}
+	if err := needAll(
+		required{&c.VocabSize, r.VocabSize, "vocab_size"},
+		required{&c.Hidden, r.HiddenSize, "hidden_size"},
+		required{&c.Layers, r.NumLayers, "num_hidden_layers"},
+		required{&c.Heads, r.NumHeads, "num_attention_heads"},
+		required{&c.FFN, r.FFNDim, "ffn_dim"},
+		required{&c.MaxPositions, r.MaxPositions, "max_position_embeddings"},
+	); err != nil {
+		return err
 	}
 	if r.DoLayerNormFirst != nil && !*r.DoLayerNormFirst {
 		return errors.New(`field "do_layer_norm_before": false (post-LayerNorm OPT) is not supported; only pre-LayerNorm OPT checkpoints run`)
@@ -262,20 +266,14 @@ func (c *Config) fromOPT(r *rawConfig) error {
 
 func (c *Config) fromGPT2(r *rawConfig) error {
 	c.Family = GPT2
-	for _, f := range []struct {
-		dst   *int
-		src   *int
-		field string
-	}{
-		{&c.VocabSize, r.VocabSize, "vocab_size"},
-		{&c.Hidden, r.NEmbd, "n_embd"},
-		{&c.Layers, r.NLayer, "n_layer"},
-		{&c.Heads, r.NHead, "n_head"},
-		{&c.MaxPositions, r.NPos, "n_positions"},
-	} {
-		if err := need(f.dst, f.src, f.field); err != nil {
-			return err
-		}
+	if err := needAll(
+		required{&c.VocabSize, r.VocabSize, "vocab_size"},
+		required{&c.Hidden, r.NEmbd, "n_embd"},
+		required{&c.Layers, r.NLayer, "n_layer"},
+		required{&c.Heads, r.NHead, "n_head"},
+		required{&c.MaxPositions, r.NPos, "n_positions"},
+	); err != nil {
+		return err
 	}
 	c.FFN = 4 * c.Hidden
 	if r.NInner != nil {
@@ -305,21 +303,15 @@ func (c *Config) fromGPT2(r *rawConfig) error {
 
 func (c *Config) fromLlama(r *rawConfig) error {
 	c.Family = Llama
-	for _, f := range []struct {
-		dst   *int
-		src   *int
-		field string
-	}{
-		{&c.VocabSize, r.VocabSize, "vocab_size"},
-		{&c.Hidden, r.HiddenSize, "hidden_size"},
-		{&c.Layers, r.NumLayers, "num_hidden_layers"},
-		{&c.Heads, r.NumHeads, "num_attention_heads"},
-		{&c.FFN, r.Intermediate, "intermediate_size"},
-		{&c.MaxPositions, r.MaxPositions, "max_position_embeddings"},
-	} {
-		if err := need(f.dst, f.src, f.field); err != nil {
-			return err
-		}
+	if err := needAll(
+		required{&c.VocabSize, r.VocabSize, "vocab_size"},
+		required{&c.Hidden, r.HiddenSize, "hidden_size"},
+		required{&c.Layers, r.NumLayers, "num_hidden_layers"},
+		required{&c.Heads, r.NumHeads, "num_attention_heads"},
+		required{&c.FFN, r.Intermediate, "intermediate_size"},
+		required{&c.MaxPositions, r.MaxPositions, "max_position_embeddings"},
+	); err != nil {
+		return err
 	}
 	c.KVHeads = c.Heads
 	if r.NumKVHeads != nil {
@@ -581,23 +573,4 @@ func (c *Config) TensorSpecs() []TensorSpec {
 	}
 	sort.Slice(s, func(i, j int) bool { return s[i].Name < s[j].Name })
 	return s
-}
-
-// lineCol turns the offset a json.SyntaxError reports (the bytes read,
-// including the offending one) into the 1-based line and column of that byte.
-func lineCol(b []byte, off int64) (int, int) {
-	off = max(0, off-1)
-	if off > int64(len(b)) {
-		off = int64(len(b))
-	}
-	line, col := 1, 1
-	for _, ch := range b[:off] {
-		if ch == '\n' {
-			line++
-			col = 1
-		} else {
-			col++
-		}
-	}
-	return line, col
 }

@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"runtime"
+	"slices"
 	"sort"
 	"strings"
 
@@ -140,7 +141,7 @@ func (b *binder) tensor(name string, shape ...int) *checkpoint.Tensor {
 		return nil
 	}
 	b.used[full] = true
-	if !equalShape(t.Shape, shape) {
+	if !slices.Equal(t.Shape, shape) {
 		b.errs = append(b.errs, fmt.Sprintf("%s: tensor %q has shape %v but config.json implies %v", t.File, full, t.Shape, shape))
 		return nil
 	}
@@ -219,18 +220,6 @@ func baseNames(paths []string) []string {
 		out[i] = filepath.Base(p)
 	}
 	return out
-}
-
-func equalShape(a, b []int) bool {
-	if len(a) != len(b) {
-		return false
-	}
-	for i := range a {
-		if a[i] != b[i] {
-			return false
-		}
-	}
-	return true
 }
 
 // detectPrefix finds the prefix under which this checkpoint stores the layout's

@@ -8,6 +8,7 @@ import (
 	"io"
 	"path/filepath"
 	"regexp"
+	"slices"
 	"sort"
 	"strconv"
 	"strings"
@@ -205,7 +206,7 @@ func sameTensors(a, b Group) bool {
 	}
 	for i := range a.Tensors {
 		x, y := a.Tensors[i], b.Tensors[i]
-		if x.Name != y.Name || x.DType != y.DType || fmt.Sprint(x.Shape) != fmt.Sprint(y.Shape) {
+		if x.Name != y.Name || x.DType != y.DType || !slices.Equal(x.Shape, y.Shape) {
 			return false
 		}
 	}

@@ -8,29 +8,14 @@ import (
 	"io"
 	"strconv"
 	"strings"
+
+	"sparsegate/harness/jsonpos"
 )
 
 // isNull reports whether a raw JSON value is absent or null.
 func isNull(raw json.RawMessage) bool {
 	raw = bytes.TrimSpace(raw)
 	return len(raw) == 0 || bytes.Equal(raw, []byte("null"))
-}
-
-// lineCol converts a byte offset in data to a 1-based line and column.
-func lineCol(data []byte, off int64) (int, int) {
-	if off > int64(len(data)) {
-		off = int64(len(data))
-	}
-	line, col := 1, 1
-	for _, c := range data[:off] {
-		if c == '\n' {
-			line++
-			col = 1
-		} else {
-			col++
-		}
-	}
-	return line, col
 }
 
 // jsonErr turns a decoding error of a whole file into a message naming the
@@ -42,10 +27,10 @@ func jsonErr(file string, data []byte, err error) error {
 	case errors.As(err, &se) && strings.Contains(se.Error(), "unexpected end of JSON input"):
 		return errAt(file, fmt.Sprintf("byte offset %d", se.Offset), "JSON ends early (%v); the file is truncated: re-export it", se)
 	case errors.As(err, &se):
-		l, c := lineCol(data, se.Offset)
+		l, c := jsonpos.OfSyntaxError(data, se)
 		return errAt(file, fmt.Sprintf("line %d, column %d (byte offset %d)", l, c, se.Offset), "invalid JSON: %v; fix the syntax or re-export the file", se)
 	case errors.As(err, &te):
-		l, c := lineCol(data, te.Offset)
+		l, c := jsonpos.LineCol(data, te.Offset)
 		field := te.Field
 		if field == "" {
 			field = "(top level)"
