@@ -15,11 +15,40 @@ type Session struct {
 	m    *Model
 	n    int         // positions cached
 	k, v [][]float32 // per layer: n × (KVHeads·HeadDim)
+	// present, per layer, is nil while every key/value head was computed at
+	// every position; otherwise n × KVHeads flags (false: skipped by a hook).
+	present [][]bool
 }
 
 // NewSession starts an empty sequence.
 func (m *Model) NewSession() *Session {
-	return &Session{m: m, k: make([][]float32, m.Config.Layers), v: make([][]float32, m.Config.Layers)}
+	L := m.Config.Layers
+	return &Session{m: m, k: make([][]float32, L), v: make([][]float32, L), present: make([][]bool, L)}
+}
+
+// appendKV caches one position's keys and values at layer li. present marks
+// which key/value heads were computed (nil: all).
+func (s *Session) appendKV(li int, k, v []float32, present []bool) {
+	kvh := s.m.Config.KVHeads
+	pos := len(s.k[li]) / len(k)
+	if present != nil && s.present[li] == nil {
+		all := make([]bool, pos*kvh, (pos+64)*kvh)
+		for i := range all {
+			all[i] = true
+		}
+		s.present[li] = all
+	}
+	if s.present[li] != nil {
+		if present == nil {
+			for range kvh {
+				s.present[li] = append(s.present[li], true)
+			}
+		} else {
+			s.present[li] = append(s.present[li], present...)
+		}
+	}
+	s.k[li] = append(s.k[li], k...)
+	s.v[li] = append(s.v[li], v...)
 }
 
 // Len returns the number of positions cached.
@@ -29,7 +58,7 @@ func (s *Session) Len() int { return s.n }
 func (s *Session) Reset() {
 	s.n = 0
 	for i := range s.k {
-		s.k[i], s.v[i] = s.k[i][:0], s.v[i][:0]
+		s.k[i], s.v[i], s.present[i] = s.k[i][:0], s.v[i][:0], nil
 	}
 }
 
@@ -42,6 +71,9 @@ func (s *Session) Truncate(n int) {
 	s.n = n
 	for i := range s.k {
 		s.k[i], s.v[i] = s.k[i][:n*kv], s.v[i][:n*kv]
+		if s.present[i] != nil {
+			s.present[i] = s.present[i][:n*s.m.Config.KVHeads]
+		}
 	}
 }
 
@@ -162,8 +194,11 @@ func (m *Model) attention(st *state, li int) {
 	for r := 0; r < R; r++ {
 		m.norm(st.h[r*d:(r+1)*d], st.x[r*d:(r+1)*d], L.attnNormW, L.attnNormB)
 	}
-	// Keys and values for every head; queries for all heads on the dense path.
-	heads := make([][]int32, R) // nil: all heads
+	if st.hook != nil {
+		m.attentionHooked(st, li)
+		return
+	}
+	// The dense path: batched projections for every head.
 	if L.qkv != nil {
 		fused := make([]float32, R*3*d)
 		kernels.Linear(fused, st.h, R, L.qkv, L.qkvB, m.threads)
@@ -174,9 +209,7 @@ func (m *Model) attention(st *state, li int) {
 			copy(st.v[r*kvd:(r+1)*kvd], f[2*d:3*d])
 		}
 	} else {
-		if st.hook == nil {
-			kernels.Linear(st.q, st.h, R, L.q, L.qB, m.threads)
-		}
+		kernels.Linear(st.q, st.h, R, L.q, L.qB, m.threads)
 		kernels.Linear(st.k, st.h, R, L.k, L.kB, m.threads)
 		kernels.Linear(st.v, st.h, R, L.v, L.vB, m.threads)
 	}
@@ -184,72 +217,167 @@ func (m *Model) attention(st *state, li int) {
 	for r := 0; r < R; r++ {
 		if m.rope != nil {
 			kernels.Rope(st.k[r*kvd:(r+1)*kvd], hd, st.rows[r].pos, m.rope)
+			kernels.Rope(st.q[r*qd:(r+1)*qd], hd, st.rows[r].pos, m.rope)
 		}
-		s := st.sessions[st.rows[r].seq]
-		s.k[li] = append(s.k[li], st.k[r*kvd:(r+1)*kvd]...)
-		s.v[li] = append(s.v[li], st.v[r*kvd:(r+1)*kvd]...)
+		st.sessions[st.rows[r].seq].appendKV(li, st.k[r*kvd:(r+1)*kvd], st.v[r*kvd:(r+1)*kvd], nil)
 	}
-	if st.hook != nil {
-		for r := 0; r < R; r++ {
-			tok := m.token(st, li, r)
-			tok.dense = func() []float32 { return m.denseHeadNorms(st, li, r) }
-			heads[r] = st.hook.Heads(tok)
-			if L.qkv == nil {
-				m.queries(st, li, r, heads[r])
-			} else if heads[r] != nil {
-				packHeads(st.q[r*qd:(r+1)*qd], heads[r], hd)
+	parallelRows(R, m.threads, func(r0, r1 int) {
+		var scores []float32
+		for r := r0; r < r1; r++ {
+			for h := 0; h < c.Heads; h++ {
+				scores = m.attendHead(st.a[r*qd+h*hd:r*qd+(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd],
+					st.sessions[st.rows[r].seq], li, h, st.rows[r].pos+1, scores)
 			}
 		}
-	}
-	if m.rope != nil {
-		for r := 0; r < R; r++ {
-			n := c.Heads
-			if heads[r] != nil {
-				n = len(heads[r])
-			}
-			kernels.Rope(st.q[r*qd:r*qd+n*hd], hd, st.rows[r].pos, m.rope)
-		}
-	}
-	m.attend(st, li, heads)
-	// Output projection and residual.
-	if st.hook == nil {
-		out := st.h // the normed input is no longer needed
-		kernels.Linear(out, st.a, R, L.o, L.oB, m.threads)
-		kernels.Add(st.x, st.x, out)
-		return
-	}
+	})
+	out := st.h // the normed input is no longer needed
+	kernels.Linear(out, st.a, R, L.o, L.oB, m.threads)
+	kernels.Add(st.x, st.x, out)
+}
+
+// attentionHooked runs attention row by row, asking the hook which heads run.
+// Only the kept heads' queries, keys, values, attention and output columns are
+// computed; a key/value head none of whose query heads run is not computed
+// and is marked absent in the cache, so later tokens attend past it.
+func (m *Model) attentionHooked(st *state, li int) {
+	c, L := m.Config, &m.layers[li]
+	R, d, hd := len(st.rows), c.Hidden, c.HeadDim
+	qd, kvd := c.Heads*hd, c.KVHeads*hd
+	group := c.Heads / c.KVHeads
 	y := st.tmp[:d]
+	q, k, v := make([]float32, qd), make([]float32, kvd), make([]float32, kvd)
+	present := make([]bool, c.KVHeads)
+	var scores []float32
 	for r := 0; r < R; r++ {
+		s := st.sessions[st.rows[r].seq]
+		pos := st.rows[r].pos
+		h := st.h[r*d : (r+1)*d]
+		tok := m.token(st, li, r)
+		tok.dense = func() []float32 { return m.denseHeadNorms(st, li, r) }
+		heads := st.hook.Heads(tok)
+		// Which key/value heads this token needs.
+		var groups []int32
+		if heads != nil {
+			for _, hh := range heads {
+				if g := hh / int32(group); len(groups) == 0 || groups[len(groups)-1] != g {
+					groups = append(groups, g)
+				}
+			}
+		}
+		m.projectQKV(L, h, q, k, v, heads, groups)
+		nq, nkv := c.Heads, c.KVHeads
+		if heads != nil {
+			nq, nkv = len(heads), len(groups)
+		}
+		if m.rope != nil {
+			kernels.Rope(q[:nq*hd], hd, pos, m.rope)
+			kernels.Rope(k[:nkv*hd], hd, pos, m.rope)
+		}
+		if heads == nil {
+			s.appendKV(li, k, v, nil)
+		} else {
+			// Unpack the computed groups into a full cache row; absent ones stay zero.
+			fk, fv := make([]float32, kvd), make([]float32, kvd)
+			clear(present)
+			for i, g := range groups {
+				copy(fk[int(g)*hd:(int(g)+1)*hd], k[i*hd:(i+1)*hd])
+				copy(fv[int(g)*hd:(int(g)+1)*hd], v[i*hd:(i+1)*hd])
+				present[g] = true
+			}
+			s.appendKV(li, fk, fv, present)
+		}
 		a := st.a[r*qd : (r+1)*qd]
-		if heads[r] == nil {
+		for i := 0; i < nq; i++ {
+			hh := i
+			if heads != nil {
+				hh = int(heads[i])
+			}
+			scores = m.attendHead(a[i*hd:(i+1)*hd], q[i*hd:(i+1)*hd], s, li, hh, pos+1, scores)
+		}
+		if heads == nil {
 			kernels.Linear(y, a, 1, L.o, L.oB, m.threads)
 		} else {
-			kernels.LinearScatterIn(y, a[:len(heads[r])*hd], L.o, L.oB, headColumns(heads[r], hd))
+			kernels.LinearScatterIn(y, a[:nq*hd], L.o, L.oB, headColumns(heads, hd))
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
 	}
 }
 
-// queries computes one row's queries for the kept heads (all when nil), packed
+// projectQKV computes one token's queries for the kept heads and keys and
+// values for the kept key/value heads (all when heads is nil), each packed
 // head after head.
-func (m *Model) queries(st *state, li, r int, heads []int32) {
-	c, L := m.Config, &m.layers[li]
-	d, qd := c.Hidden, c.Heads*c.HeadDim
-	h, q := st.h[r*d:(r+1)*d], st.q[r*qd:(r+1)*qd]
-	if heads == nil {
-		kernels.Linear(q, h, 1, L.q, L.qB, m.threads)
+func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32) {
+	c := m.Config
+	d, hd := c.Hidden, c.HeadDim
+	if L.qkv != nil { // fused GPT-2 layout: logical rows q [0,d), k [d,2d), v [2d,3d)
+		if heads == nil {
+			all := make([]float32, 3*d)
+			kernels.Linear(all, h, 1, L.qkv, L.qkvB, m.threads)
+			copy(q, all[:d])
+			copy(k, all[d:2*d])
+			copy(v, all[2*d:])
+			return
+		}
+		idx := headColumns(heads, hd)
+		kc := headColumns(groups, hd)
+		for _, j := range kc {
+			idx = append(idx, int32(d)+j)
+		}
+		for _, j := range kc {
+			idx = append(idx, int32(2*d)+j)
+		}
+		out := make([]float32, len(idx))
+		kernels.LinearGather(out, h, L.qkv, L.qkvB, idx)
+		nq, nk := len(heads)*hd, len(kc)
+		copy(q, out[:nq])
+		copy(k, out[nq:nq+nk])
+		copy(v, out[nq+nk:])
 		return
 	}
-	kernels.LinearGather(q[:len(heads)*c.HeadDim], h, L.q, L.qB, headColumns(heads, c.HeadDim))
+	if heads == nil {
+		kernels.Linear(q, h, 1, L.q, L.qB, m.threads)
+		kernels.Linear(k, h, 1, L.k, L.kB, m.threads)
+		kernels.Linear(v, h, 1, L.v, L.vB, m.threads)
+		return
+	}
+	kc := headColumns(groups, hd)
+	kernels.LinearGather(q[:len(heads)*hd], h, L.q, L.qB, headColumns(heads, hd))
+	kernels.LinearGather(k[:len(kc)], h, L.k, L.kB, kc)
+	kernels.LinearGather(v[:len(kc)], h, L.v, L.vB, kc)
 }
 
-// packHeads moves the kept heads of a full query row to its front.
-func packHeads(q []float32, heads []int32, hd int) {
-	for i, h := range heads {
-		copy(q[i*hd:(i+1)*hd], q[int(h)*hd:(int(h)+1)*hd])
+// attendHead computes one query head's causal softmax attention over the
+// first n cached positions of its key/value head, skipping positions where
+// that key/value head was not computed, into out. scores is reusable scratch.
+func (m *Model) attendHead(out, q []float32, s *Session, li, head, n int, scores []float32) []float32 {
+	c := m.Config
+	hd, kvd := c.HeadDim, c.KVHeads*c.HeadDim
+	g := head / (c.Heads / c.KVHeads)
+	scale := float32(1 / math.Sqrt(float64(hd)))
+	if cap(scores) < n {
+		scores = make([]float32, n)
 	}
+	scores = scores[:n]
+	K, V, P := s.k[li], s.v[li], s.present[li]
+	for j := 0; j < n; j++ {
+		if P != nil && !P[j*c.KVHeads+g] {
+			scores[j] = float32(math.Inf(-1))
+			continue
+		}
+		scores[j] = kernels.Dot(q, K[j*kvd+g*hd:j*kvd+(g+1)*hd]) * scale
+	}
+	kernels.Softmax(scores)
+	clear(out)
+	for j := 0; j < n; j++ {
+		if scores[j] != 0 {
+			kernels.Axpy(scores[j], V[j*kvd+g*hd:j*kvd+(g+1)*hd], out)
+		}
+	}
+	return scores
 }
+
+
 
 // headColumns expands head indices to the indices of their hd-wide slices.
 func headColumns(heads []int32, hd int) []int32 {
@@ -262,89 +390,44 @@ func headColumns(heads []int32, hd int) []int32 {
 	return idx
 }
 
-// attend computes causal softmax attention for every row and kept head, in
-// parallel over rows (each row's result is independent of the split).
-func (m *Model) attend(st *state, li int, heads [][]int32) {
-	c := m.Config
-	R, hd := len(st.rows), c.HeadDim
-	qd, kvd := c.Heads*hd, c.KVHeads*hd
-	group := c.Heads / c.KVHeads
-	scale := float32(1 / math.Sqrt(float64(hd)))
-	parallelRows(R, m.threads, func(r0, r1 int) {
-		var scores []float32
-		for r := r0; r < r1; r++ {
-			s := st.sessions[st.rows[r].seq]
-			n := st.rows[r].pos + 1
-			if cap(scores) < n {
-				scores = make([]float32, n)
-			}
-			scores = scores[:n]
-			K, V := s.k[li], s.v[li]
-			count := c.Heads
-			if heads[r] != nil {
-				count = len(heads[r])
-			}
-			for i := 0; i < count; i++ {
-				h := i
-				if heads[r] != nil {
-					h = int(heads[r][i])
-				}
-				g := h / group
-				q := st.q[r*qd+i*hd : r*qd+(i+1)*hd]
-				for j := 0; j < n; j++ {
-					scores[j] = kernels.Dot(q, K[j*kvd+g*hd:j*kvd+(g+1)*hd]) * scale
-				}
-				kernels.Softmax(scores)
-				out := st.a[r*qd+i*hd : r*qd+(i+1)*hd]
-				clear(out)
-				for j := 0; j < n; j++ {
-					kernels.Axpy(scores[j], V[j*kvd+g*hd:j*kvd+(g+1)*hd], out)
-				}
-			}
-		}
-	})
-}
 
-// denseHeadNorms runs the full attention for one row on a copy and returns the
-// L2 norm of each head's output (the oracle's magnitude for heads).
+// denseHeadNorms runs the full attention for row r on the side (nothing is
+// cached) and returns the L2 norm of each head's output: the oracle's
+// magnitude for heads. Earlier positions come from the cache; the row's own
+// key and value are computed here.
 func (m *Model) denseHeadNorms(st *state, li, r int) []float32 {
 	c, L := m.Config, &m.layers[li]
 	d, hd, qd, kvd := c.Hidden, c.HeadDim, c.Heads*c.HeadDim, c.KVHeads*c.HeadDim
-	h := st.h[r*d : (r+1)*d]
-	q := make([]float32, qd)
-	if L.qkv != nil {
-		all := make([]float32, 3*d)
-		kernels.Linear(all, h, 1, L.qkv, L.qkvB, 1)
-		copy(q, all[:d])
-	} else {
-		kernels.Linear(q, h, 1, L.q, L.qB, 1)
-	}
+	q, k, v := make([]float32, qd), make([]float32, kvd), make([]float32, kvd)
+	m.projectQKV(L, st.h[r*d:(r+1)*d], q, k, v, nil, nil)
+	pos := st.rows[r].pos
 	if m.rope != nil {
-		kernels.Rope(q, hd, st.rows[r].pos, m.rope)
+		kernels.Rope(q, hd, pos, m.rope)
+		kernels.Rope(k, hd, pos, m.rope)
 	}
-	// Every key and value up to this row's position is already cached.
 	s := st.sessions[st.rows[r].seq]
-	n := st.rows[r].pos + 1
-	K, V := s.k[li], s.v[li]
+	side := &Session{m: m, n: s.n, k: s.k, v: s.v, present: s.present}
+	side.k = append([][]float32(nil), s.k...)
+	side.v = append([][]float32(nil), s.v...)
+	side.present = append([][]bool(nil), s.present...)
+	// Appending through copied slice headers writes at most past the end of the
+	// session's arrays, where it never reads; the session itself is unchanged.
+	side.appendKV(li, k, v, nil)
 	norms := make([]float32, c.Heads)
-	scores := make([]float32, n)
 	out := make([]float32, hd)
-	scale := float32(1 / math.Sqrt(float64(hd)))
-	group := c.Heads / c.KVHeads
-	for hh := 0; hh < c.Heads; hh++ {
-		g := hh / group
-		for j := 0; j < n; j++ {
-			scores[j] = kernels.Dot(q[hh*hd:(hh+1)*hd], K[j*kvd+g*hd:j*kvd+(g+1)*hd]) * scale
-		}
-		kernels.Softmax(scores)
-		clear(out)
-		for j := 0; j < n; j++ {
-			kernels.Axpy(scores[j], V[j*kvd+g*hd:j*kvd+(g+1)*hd], out)
-		}
-		norms[hh] = float32(math.Sqrt(float64(kernels.Dot(out, out))))
+	var scores []float32
+	for h := 0; h < c.Heads; h++ {
+		scores = m.attendHead(out, q[h*hd:(h+1)*hd], side, li, h, pos+1, scores)
+		norms[h] = float32(math.Sqrt(float64(kernels.Dot(out, out))))
 	}
 	return norms
 }
+
+// denseMLPShare is the mean kept fraction of a batch's rows above which the
+// MLP runs as batched dense products with the dropped neurons zeroed, rather
+// than as per-row gathers: batched products are several times more efficient
+// per multiply than row-at-a-time ones. Both give the same bits.
+const denseMLPShare = 0.3
 
 func (m *Model) mlp(st *state, li int) {
 	c, L := m.Config, &m.layers[li]
@@ -352,7 +435,27 @@ func (m *Model) mlp(st *state, li int) {
 	for r := 0; r < R; r++ {
 		m.norm(st.h[r*d:(r+1)*d], st.x[r*d:(r+1)*d], L.mlpNormW, L.mlpNormB)
 	}
-	if st.hook == nil {
+	var idx [][]int32
+	kept := 0
+	if st.hook != nil {
+		idx = make([][]int32, R)
+		for r := 0; r < R; r++ {
+			tok := m.token(st, li, r)
+			h := tok.Input
+			tok.dense = func() []float32 {
+				act := make([]float32, f)
+				m.mlpHidden(act, h, L, nil)
+				return act
+			}
+			if sel := st.hook.Neurons(tok); sel != nil {
+				idx[r] = append([]int32(nil), sel...) // the hook may reuse its slice
+				kept += len(sel)
+			} else {
+				kept += f
+			}
+		}
+	}
+	if st.hook == nil || (R > 1 && float64(kept) > denseMLPShare*float64(R*f)) {
 		kernels.Linear(st.u, st.h, R, L.up, L.upB, m.threads)
 		if L.gate != nil {
 			kernels.Linear(st.g, st.h, R, L.gate, nil, m.threads)
@@ -361,6 +464,11 @@ func (m *Model) mlp(st *state, li int) {
 		} else {
 			m.activate(st.u)
 		}
+		for r := range idx { // zero what the hook dropped
+			if idx[r] != nil {
+				zeroExcept(st.u[r*f:(r+1)*f], idx[r])
+			}
+		}
 		out := st.h
 		kernels.Linear(out, st.u, R, L.down, L.downB, m.threads)
 		kernels.Add(st.x, st.x, out)
@@ -368,25 +476,29 @@ func (m *Model) mlp(st *state, li int) {
 	}
 	y := st.tmp[:d]
 	for r := 0; r < R; r++ {
-		tok := m.token(st, li, r)
 		h := st.h[r*d : (r+1)*d]
-		tok.Input = h
 		u := st.u[r*f : (r+1)*f]
-		tok.dense = func() []float32 {
-			act := make([]float32, f)
-			m.mlpHidden(act, h, L, nil)
-			return act
-		}
-		idx := st.hook.Neurons(tok)
-		if idx == nil {
+		if idx[r] == nil {
 			m.mlpHidden(u, h, L, nil)
 			kernels.Linear(y, u, 1, L.down, L.downB, m.threads)
 		} else {
-			m.mlpHidden(u[:len(idx)], h, L, idx)
-			kernels.LinearScatterIn(y, u[:len(idx)], L.down, L.downB, idx)
+			m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
+			kernels.LinearScatterIn(y, u[:len(idx[r])], L.down, L.downB, idx[r])
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
+	}
+}
+
+// zeroExcept zeroes u outside the ascending indices keep.
+func zeroExcept(u []float32, keep []int32) {
+	next := 0
+	for i := range u {
+		if next < len(keep) && int(keep[next]) == i {
+			next++
+			continue
+		}
+		u[i] = 0
 	}
 }
 

@@ -178,10 +178,13 @@ func (m *Model) Continuations(context []int, conts [][]int, hook Hook) ([]Contin
 
 // Clone returns an independent copy of the session's cache.
 func (s *Session) Clone() *Session {
-	c := &Session{m: s.m, n: s.n, k: make([][]float32, len(s.k)), v: make([][]float32, len(s.v))}
+	c := &Session{m: s.m, n: s.n, k: make([][]float32, len(s.k)), v: make([][]float32, len(s.v)), present: make([][]bool, len(s.k))}
 	for i := range s.k {
 		c.k[i] = append([]float32(nil), s.k[i]...)
 		c.v[i] = append([]float32(nil), s.v[i]...)
+		if s.present[i] != nil {
+			c.present[i] = append([]bool(nil), s.present[i]...)
+		}
 	}
 	return c
 }

@@ -1,0 +1,101 @@
+package engine
+
+import (
+	"strings"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sparsegate/harness/checkpoint"
+)
+
+// posHook keeps a position-dependent subset: heads h with (h+pos)%3 != 0 (at
+// least one), and neurons whose index is not ≡ pos mod 4 (75% of them).
+type posHook struct{ heads int }
+
+func (p posHook) Heads(t *Token) []int32 {
+	var s []int32
+	for h := 0; h < p.heads; h++ {
+		if (h+t.Pos)%3 != 0 {
+			s = append(s, int32(h))
+		}
+	}
+	return s
+}
+
+func (p posHook) Neurons(t *Token) []int32 {
+	var s []int32
+	for i := range len(t.Dense()) {
+		if i%4 != t.Pos%4 {
+			s = append(s, int32(i))
+		}
+	}
+	return s
+}
+
+// decodeLogProbs scores a sequence one token at a time through the cache, so
+// every row takes the per-row gather path.
+func decodeLogProbs(t *testing.T, m *Model, toks []int, hook Hook) []float64 {
+	t.Helper()
+	s := m.NewSession()
+	var out []float64
+	for i := 0; i+1 < len(toks); i++ {
+		h, err := m.Forward([]*Session{s}, [][]int{{toks[i]}}, hook)
+		require.NoError(t, err)
+		lp := make([]float64, 1)
+		require.NoError(t, m.targetLogProbs(h, []int{toks[i+1]}, lp, nil))
+		out = append(out, lp[0])
+	}
+	return out
+}
+
+// A batch whose rows keep most neurons runs the MLP as dense products with
+// the dropped neurons zeroed; one token at a time it runs gathers. Both must
+// give the same bits, with masks that change from token to token.
+func TestBatchedAndGatheredSparsePathsAgree(t *testing.T) {
+	for _, f := range families {
+		t.Run(string(f), func(t *testing.T) {
+			m := tinyModel(t, f, 2, nil)
+			toks := seq(24, 96, 13)
+			h := posHook{heads: m.Config.Heads}
+			batch, err := m.LogProbs(toks, h)
+			require.NoError(t, err)
+			require.Equal(t, batch, decodeLogProbs(t, m, toks, h))
+			dense, err := m.LogProbs(toks, nil)
+			require.NoError(t, err)
+			require.NotEqual(t, dense, batch)
+		})
+	}
+}
+
+// groupHook keeps only the heads of the first key/value group, so the other
+// groups' keys and values are never computed.
+type groupHook struct{ keep int }
+
+func (g groupHook) Heads(*Token) []int32 { return iota32(g.keep) }
+func (g groupHook) Neurons(*Token) []int32 { return nil }
+
+func TestSkippedKeyValueHeadsEqualZeroedWeights(t *testing.T) {
+	m := tinyModel(t, checkpoint.Llama, 2, nil) // 4 heads, 2 key/value heads
+	toks := seq(20, 96, 14)
+	got, err := m.LogProbs(toks, groupHook{keep: 2})
+	require.NoError(t, err)
+	c := m.Config
+	hd, d := c.HeadDim, c.Hidden
+	zeroed := tinyModel(t, checkpoint.Llama, 2, func(name string, v []float32) {
+		switch {
+		case strings.HasSuffix(name, "q_proj.weight"):
+			clear(v[2*hd*d:]) // heads 2 and 3
+		case strings.HasSuffix(name, "o_proj.weight"):
+			for r := 0; r < d; r++ {
+				clear(v[r*c.Heads*hd+2*hd : (r+1)*c.Heads*hd])
+			}
+		}
+	})
+	want, err := zeroed.LogProbs(toks, nil)
+	require.NoError(t, err)
+	for i := range want {
+		require.InDelta(t, want[i], got[i], 1e-5*max(1, -want[i]), "position %d", i)
+	}
+	require.Equal(t, got, decodeLogProbs(t, m, toks, groupHook{keep: 2}))
+}

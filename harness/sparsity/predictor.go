@@ -1,0 +1,74 @@
+package sparsity
+
+import (
+	"fmt"
+	"math"
+	"sort"
+
+	"sparsegate/harness/kernels"
+)
+
+// A Predictor is a layer's low-rank two-layer scorer: for an input x of width
+// In it computes scores = W2·relu(W1·x + B1) + B2, one score per unit (Out
+// MLP neurons or attention heads); the units with the k highest scores run.
+// W1 is Rank×In and W2 is Out×Rank, row-major.
+type Predictor struct {
+	In, Rank, Out int
+	W1, B1        []float32
+	W2, B2        []float32
+}
+
+// NewPredictor allocates a zero predictor of the given shape.
+func NewPredictor(in, rank, out int) *Predictor {
+	return &Predictor{In: in, Rank: rank, Out: out,
+		W1: make([]float32, rank*in), B1: make([]float32, rank),
+		W2: make([]float32, out*rank), B2: make([]float32, out)}
+}
+
+// Check reports a shape mismatch or a non-finite weight.
+func (p *Predictor) Check() error {
+	if p.In <= 0 || p.Rank <= 0 || p.Out <= 0 {
+		return fmt.Errorf("predictor shape %d→%d→%d must be positive", p.In, p.Rank, p.Out)
+	}
+	for _, c := range []struct {
+		name string
+		v    []float32
+		n    int
+	}{{"w1", p.W1, p.Rank * p.In}, {"b1", p.B1, p.Rank}, {"w2", p.W2, p.Out * p.Rank}, {"b2", p.B2, p.Out}} {
+		if len(c.v) != c.n {
+			return fmt.Errorf("predictor %s has %d values, want %d for shape %d→%d→%d", c.name, len(c.v), c.n, p.In, p.Rank, p.Out)
+		}
+		for i, x := range c.v {
+			if math.IsNaN(float64(x)) || math.IsInf(float64(x), 0) {
+				return fmt.Errorf("predictor %s holds a non-finite value at element %d", c.name, i)
+			}
+		}
+	}
+	return nil
+}
+
+// Scores computes the unit scores for x into dst (len Out); hidden is scratch
+// of len Rank. The arithmetic is the engine's deterministic Linear.
+func (p *Predictor) Scores(dst, hidden, x []float32) {
+	w1 := &kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1}
+	w2 := &kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2}
+	kernels.Linear(hidden, x, 1, w1, p.B1, 1)
+	kernels.ReLU(hidden)
+	kernels.Linear(dst, hidden, 1, w2, p.B2, 1)
+}
+
+// TopK returns, in ascending order, the indices of the k largest scores (ties
+// go to the lower index), appended to dst[:0].
+func TopK(dst []int32, scores []float32, k int) []int32 {
+	if k < 0 || k > len(scores) {
+		panic("sparsity: TopK k out of range")
+	}
+	idx := make([]int32, len(scores))
+	for i := range idx {
+		idx[i] = int32(i)
+	}
+	sort.SliceStable(idx, func(a, b int) bool { return scores[idx[a]] > scores[idx[b]] })
+	dst = append(dst[:0], idx[:k]...)
+	sort.Slice(dst, func(a, b int) bool { return dst[a] < dst[b] })
+	return dst
+}

@@ -1,0 +1,74 @@
+// Command mkdata writes the demo scenario's data: the committed held-out
+// splits and probe items (into suites/demo/data), and the training workspace
+// the offline trainer reads (training and validation text, their token ids,
+// and the trained tokenizer).
+//
+//	go run ./suites/demo/mkdata --out /tmp/demo-train
+package main
+
+import (
+	"encoding/json"
+	"flag"
+	"fmt"
+	"log"
+	"os"
+	"path/filepath"
+
+	"sparsegate/harness/atomicfile"
+	"sparsegate/suites/demo/gen"
+)
+
+func main() {
+	log.SetFlags(0)
+	log.SetPrefix("mkdata: ")
+	seed := flag.Uint64("seed", 1, "scenario seed")
+	vocab := flag.Int("vocab", 2048, "tokenizer vocabulary size")
+	out := flag.String("out", "", "training workspace to write (required)")
+	data := flag.String("data", "suites/demo/data", "directory for the committed held-out data")
+	flag.Parse()
+	if *out == "" {
+		log.Fatal("--out DIR is required")
+	}
+	d, err := gen.Generate(*seed, gen.DefaultSizes())
+	if err != nil {
+		log.Fatal(err)
+	}
+	if err := gen.WriteData(*data, d); err != nil {
+		log.Fatal(err)
+	}
+	tok, err := gen.TrainTokenizer(d, *vocab)
+	if err != nil {
+		log.Fatal(err)
+	}
+	model := filepath.Join(*out, "model")
+	if err := os.MkdirAll(model, 0o755); err != nil {
+		log.Fatal(err)
+	}
+	if err := tok.Save(model); err != nil {
+		log.Fatal(err)
+	}
+	for name, docs := range map[string][]string{"train.txt": d.Train, "valid.txt": d.Valid} {
+		if err := atomicfile.WriteFile(filepath.Join(*out, name), []byte(gen.Text(docs))); err != nil {
+			log.Fatal(err)
+		}
+	}
+	nTrain, err := gen.WriteIDs(filepath.Join(*out, "train.u16"), tok, d.Train)
+	if err != nil {
+		log.Fatal(err)
+	}
+	nValid, err := gen.WriteIDs(filepath.Join(*out, "valid.u16"), tok, d.Valid)
+	if err != nil {
+		log.Fatal(err)
+	}
+	bos, _ := tok.BOS()
+	eos, _ := tok.EOS()
+	pad, _ := tok.PAD()
+	meta, _ := json.MarshalIndent(map[string]any{
+		"seed": *seed, "vocab": tok.VocabSize(), "bos": bos, "eos": eos, "pad": pad,
+		"train_tokens": nTrain, "valid_tokens": nValid, "train_docs": len(d.Train),
+	}, "", "  ")
+	if err := atomicfile.WriteFile(filepath.Join(*out, "meta.json"), append(meta, '\n')); err != nil {
+		log.Fatal(err)
+	}
+	fmt.Printf("wrote %s: %d training tokens, %d validation tokens, vocabulary %d (%s)\n", *out, nTrain, nValid, tok.VocabSize(), tok.Describe())
+}

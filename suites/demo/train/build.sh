@@ -1,0 +1,26 @@
+#!/usr/bin/env bash
+# Rebuilds the demo model from its seed, end to end: scenario data and
+# tokenizer (Go), training (PyTorch, offline), export into suites/demo/model,
+# then the quality measurements the model card reports.
+#
+#   bash suites/demo/train/build.sh          # about 40 minutes on 2 cores
+#
+# Needs python3-torch, python3-numpy and, for speed, libopenblas0-pthread
+# (Debian packages). Same seed, torch build and thread count: same weights.
+set -euo pipefail
+cd "$(dirname "$0")/../../.."
+work=${WORK:-$(mktemp -d)}
+echo "workspace: $work" >&2
+
+go run ./suites/demo/mkdata --seed 1 --vocab 2048 --out "$work"
+
+LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread /usr/bin/python3 suites/demo/train/train.py \
+  --train "$work/train.u16" --valid "$work/valid.u16" --vocab 2048 --out "$work/model" \
+  --layers 4 --hidden 128 --heads 4 --ffn 512 --seq 256 --batch 8 --steps 1600 \
+  --lr 2e-3 --warmup 100 --act-l1 0.05 --eval-every 100 --eval-windows 32 \
+  --seed 1 --threads 2 --log "$work/train.log"
+
+for f in config.json model.safetensors tokenizer.json tokenizer_config.json train_log.json; do
+  cp "$work/model/$f" suites/demo/model/
+done
+go test ./suites/demo -run 'TestQuality|TestMatchesPyTorch' -count=1 -v

@@ -1,0 +1,446 @@
+#!/usr/bin/python3
+"""train: the offline training step for the demo OPT-family decoder.
+
+    LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread \\
+    /usr/bin/python3 train.py --train TRAIN.u16 --valid VALID.u16 --vocab V --out DIR [options]
+
+Reads little-endian uint16 token-id files, trains a pre-LayerNorm OPT decoder
+with a tied output head, and writes DIR/model.safetensors (F16, open OPT tensor
+names), DIR/config.json and DIR/train_log.json. Bad user input (missing or
+malformed token file, token id past the vocabulary, inconsistent sizes) is
+reported on stderr and the script exits with status 2.
+"""
+
+import argparse
+import ctypes
+import json
+import math
+import os
+import struct
+import sys
+import tempfile
+import time
+
+import numpy as np
+import torch
+import torch.nn.functional as F
+from torch import nn
+
+LN_EPS = 1e-5
+POS_OFFSET = 2  # OPT's learned positions: position p reads row p + 2
+
+
+class TrainError(Exception):
+    """TrainError is bad user input; its message names the file and the place."""
+
+
+# ---------------------------------------------------------------- inputs
+
+def read_tokens(path, vocab, flag):
+    """read_tokens loads a little-endian uint16 token file and checks every id is below vocab."""
+    try:
+        size = os.path.getsize(path)
+    except OSError as e:
+        raise TrainError(f"{path} ({flag}): cannot read: {e}") from e
+    if size == 0 or size % 2:
+        raise TrainError(f"{path} ({flag}): file is {size} bytes; a uint16 token file has a positive even length; "
+                         "rewrite it")
+    ids = np.fromfile(path, dtype="<u2")
+    bad = np.flatnonzero(ids >= vocab)
+    if bad.size:
+        i = int(bad[0])
+        raise TrainError(f"{path} ({flag}): token id {int(ids[i])} at byte offset {2 * i} is not below "
+                         f"--vocab {vocab}; pass the tokenizer's vocabulary size")
+    return ids
+
+
+def validation_windows(ids, seq, limit):
+    """validation_windows returns start offsets of at most limit windows of seq+1 tokens.
+
+    Candidates start every seq tokens, so each target token is scored at most
+    once; when there are more than limit, evenly spaced ones are kept."""
+    count = (len(ids) - 1) // seq
+    starts = np.arange(count, dtype=np.int64) * seq
+    if count > limit:
+        starts = starts[np.linspace(0, count - 1, limit).round().astype(np.int64)]
+    return starts
+
+
+def windows(ids, starts, seq):
+    """windows gathers [len(starts), seq+1] token ids as int64."""
+    idx = starts[:, None] + np.arange(seq + 1, dtype=np.int64)[None, :]
+    return torch.from_numpy(ids[idx].astype(np.int64))
+
+
+# ---------------------------------------------------------------- model
+
+def _params(**tensors):
+    """_params returns a module that holds the given tensors as parameters."""
+    m = nn.Module()
+    for name, t in tensors.items():
+        m.register_parameter(name, nn.Parameter(t))
+    return m
+
+
+class OPTDecoder(nn.Module):
+    """OPTDecoder is a pre-LayerNorm OPT decoder with a tied head.
+
+    Its parameter names (named_parameters / state_dict) are exactly the open
+    OPT checkpoint names, model.decoder.*."""
+
+    def __init__(self, vocab, hidden, layers, heads, ffn, max_positions, seed):
+        super().__init__()
+        if hidden % heads:
+            raise TrainError(f"--hidden {hidden} is not a multiple of --heads {heads}; change one of them")
+        self.vocab, self.hidden, self.heads, self.max_positions = vocab, hidden, heads, max_positions
+        gen = torch.Generator().manual_seed(seed)
+        # GPT-style init, common practice, no source: N(0, 0.02); residual
+        # output projections scaled by 1/sqrt(2 * layers); biases 0, norms 1.
+        resid_std = 0.02 / math.sqrt(2 * layers)
+
+        def normal(shape, std=0.02):
+            return torch.empty(shape).normal_(0.0, std, generator=gen)
+
+        def linear(out_dim, in_dim, std=0.02):
+            return _params(weight=normal((out_dim, in_dim), std), bias=torch.zeros(out_dim))
+
+        def norm():
+            return _params(weight=torch.ones(hidden), bias=torch.zeros(hidden))
+
+        dec = nn.Module()
+        dec.embed_tokens = _params(weight=normal((vocab, hidden)))
+        dec.embed_positions = _params(weight=normal((max_positions + POS_OFFSET, hidden)))
+        dec.layers = nn.ModuleList()
+        for _ in range(layers):
+            layer = nn.Module()
+            layer.self_attn_layer_norm = norm()
+            attn = nn.Module()
+            attn.q_proj, attn.k_proj = linear(hidden, hidden), linear(hidden, hidden)
+            attn.v_proj = linear(hidden, hidden)
+            attn.out_proj = linear(hidden, hidden, resid_std)
+            layer.self_attn = attn
+            layer.final_layer_norm = norm()
+            layer.fc1 = linear(ffn, hidden)
+            layer.fc2 = linear(hidden, ffn, resid_std)
+            dec.layers.append(layer)
+        dec.final_layer_norm = norm()
+        self.model = nn.Module()
+        self.model.decoder = dec
+        # additive causal mask, built once: -inf where key position > query position
+        future = torch.triu(torch.ones(max_positions, max_positions, dtype=torch.bool), diagonal=1)
+        mask = torch.zeros(max_positions, max_positions).masked_fill(future, float("-inf"))
+        self.register_buffer("causal_mask", mask, persistent=False)
+
+    def forward(self, ids, act_stats=False):
+        """forward maps ids [B, T] to logits [B, T, vocab].
+
+        With act_stats it also returns the mean post-ReLU activation over all
+        layers, tokens and neurons (with grad) and the count of exact zeros."""
+        dec, d, nh = self.model.decoder, self.hidden, self.heads
+        b, t = ids.shape
+        if t > self.max_positions:
+            raise ValueError(f"train: sequence of {t} tokens exceeds max_positions {self.max_positions}")
+        hd = d // nh
+        scale = hd ** -0.5
+        mask = self.causal_mask[:t, :t]
+        x = dec.embed_tokens.weight[ids] + dec.embed_positions.weight[POS_OFFSET:POS_OFFSET + t]
+        act_sum, zeros = 0.0, 0
+        for L in dec.layers:
+            a = L.self_attn
+            h = F.layer_norm(x, (d,), L.self_attn_layer_norm.weight, L.self_attn_layer_norm.bias, LN_EPS)
+            qkv = F.linear(h, torch.cat([a.q_proj.weight, a.k_proj.weight, a.v_proj.weight]),
+                           torch.cat([a.q_proj.bias, a.k_proj.bias, a.v_proj.bias]))
+            q, k, v = (z.view(b, t, nh, hd).transpose(1, 2) for z in qkv.split(d, dim=-1))  # [B, H, T, hd]
+            probs = F.softmax(torch.matmul(q * scale, k.transpose(-1, -2)) + mask, dim=-1)  # OPT scales q
+            o = torch.matmul(probs, v).transpose(1, 2).reshape(b, t, d)
+            x = x + F.linear(o, a.out_proj.weight, a.out_proj.bias)
+            h = F.layer_norm(x, (d,), L.final_layer_norm.weight, L.final_layer_norm.bias, LN_EPS)
+            act = F.relu(F.linear(h, L.fc1.weight, L.fc1.bias))
+            if act_stats:
+                act_sum = act_sum + act.mean()
+                zeros += int((act == 0).sum())
+            x = x + F.linear(act, L.fc2.weight, L.fc2.bias)
+        x = F.layer_norm(x, (d,), dec.final_layer_norm.weight, dec.final_layer_norm.bias, LN_EPS)
+        logits = F.linear(x, dec.embed_tokens.weight)  # tied head
+        if act_stats:
+            return logits, act_sum / len(dec.layers), zeros
+        return logits
+
+
+def param_groups(model, weight_decay):
+    """param_groups puts the q/k/v/out/fc1/fc2 weight matrices under weight decay.
+
+    Biases, LayerNorm weights and biases, the token embedding (the tied head)
+    and the position embedding get none."""
+    decay, plain = [], []
+    for name, p in model.named_parameters():
+        is_matrix = name.endswith(".weight") and p.dim() == 2 and "embed_" not in name
+        (decay if is_matrix else plain).append(p)
+    return [{"params": decay, "weight_decay": weight_decay}, {"params": plain, "weight_decay": 0.0}]
+
+
+def lr_at(step, steps, lr, warmup):
+    """lr_at is the rate for 0-based step: linear warmup to lr over warmup steps,
+    then cosine decay to 0.1 * lr at the last step."""
+    if step < warmup:
+        return lr * (step + 1) / warmup
+    span = max(steps - 1 - warmup, 1)
+    progress = min((step - warmup) / span, 1.0)
+    return lr * (0.1 + 0.9 * 0.5 * (1.0 + math.cos(math.pi * progress)))
+
+
+# ---------------------------------------------------------------- outputs
+
+def write_atomic(path, data):
+    """write_atomic writes bytes to a temp file beside path, fsyncs it and renames it over path."""
+    folder = os.path.dirname(os.path.abspath(path))
+    fd, tmp = tempfile.mkstemp(prefix="." + os.path.basename(path) + ".", suffix=".tmp", dir=folder)
+    try:
+        os.fchmod(fd, 0o644)  # mkstemp makes 0600; outputs are meant to be shared
+        with os.fdopen(fd, "wb") as f:
+            f.write(data)
+            f.flush()
+            os.fsync(f.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+    dfd = os.open(folder, os.O_RDONLY)
+    try:
+        os.fsync(dfd)
+    finally:
+        os.close(dfd)
+
+
+def safetensors_bytes(tensors):
+    """safetensors_bytes encodes {name: float tensor} as an F16 safetensors file, in order.
+
+    Layout: 8-byte little-endian header length, JSON header padded with spaces
+    to a multiple of 8, then the tensors' data contiguous in header order."""
+    header, blobs, offset = {"__metadata__": {"format": "pt"}}, [], 0
+    for name, t in tensors.items():
+        a = t.detach().cpu().numpy().astype("<f2")  # numpy's round-to-nearest-even
+        if not np.isfinite(a).all():
+            raise TrainError(f"tensor {name!r} has values outside the F16 range after training; lower --lr and retrain")
+        blob = a.tobytes()
+        header[name] = {"dtype": "F16", "shape": list(a.shape), "data_offsets": [offset, offset + len(blob)]}
+        blobs.append(blob)
+        offset += len(blob)
+    raw = json.dumps(header, separators=(",", ":")).encode("utf-8")
+    raw += b" " * (-len(raw) % 8)
+    return struct.pack("<Q", len(raw)) + raw + b"".join(blobs)
+
+
+def opt_config(args):
+    """opt_config returns config.json in the open OPT layout."""
+    return {
+        "model_type": "opt", "architectures": ["OPTForCausalLM"],
+        "vocab_size": args.vocab, "hidden_size": args.hidden, "num_hidden_layers": args.layers,
+        "num_attention_heads": args.heads, "ffn_dim": args.ffn,
+        "max_position_embeddings": args.max_positions, "word_embed_proj_dim": args.hidden,
+        "do_layer_norm_before": True, "activation_function": "relu", "enable_bias": True,
+        "tie_word_embeddings": True,
+        "bos_token_id": args.bos, "eos_token_id": args.eos, "pad_token_id": args.pad,
+    }
+
+
+def blas_in_use(threads):
+    """blas_in_use names the loaded BLAS library and, for OpenBLAS, sets its thread count."""
+    with open("/proc/self/maps", encoding="utf-8", errors="replace") as f:
+        paths = [line.split()[-1] for line in f if "/" in line]
+    lib_path = next((p for p in paths if "blas" in os.path.basename(p)), "unknown")
+    try:
+        lib = ctypes.CDLL("libblas.so.3")
+    except OSError:
+        return lib_path
+    if hasattr(lib, "openblas_set_num_threads"):
+        lib.openblas_set_num_threads(threads)
+        lib.openblas_get_config.restype = ctypes.c_char_p
+        return f"{lib_path} ({lib.openblas_get_config().decode()}, {threads} threads)"
+    return lib_path
+
+
+# ---------------------------------------------------------------- training
+
+@torch.no_grad()
+def evaluate(model, valid, starts, seq, batch):
+    """evaluate returns (mean NLL per token, fraction of post-ReLU activations exactly zero)."""
+    nll, tokens, zeros, acts = 0.0, 0, 0, 0
+    n_layers = len(model.model.decoder.layers)
+    ffn = model.model.decoder.layers[0].fc1.weight.shape[0]
+    for i in range(0, len(starts), batch):
+        w = windows(valid, starts[i:i + batch], seq)
+        logits, _, z = model(w[:, :-1], act_stats=True)
+        nll += float(F.cross_entropy(logits.reshape(-1, model.vocab), w[:, 1:].reshape(-1), reduction="sum"))
+        tokens += w[:, 1:].numel()
+        zeros += z
+        acts += w[:, 1:].numel() * n_layers * ffn
+    return nll / tokens, zeros / acts
+
+
+def check_args(args, train, valid):
+    """check_args rejects argument combinations that cannot train."""
+    for flag in ("vocab", "layers", "hidden", "heads", "ffn", "seq", "batch", "threads", "max_positions",
+                 "eval_every", "eval_windows"):
+        if getattr(args, flag) < 1:
+            raise TrainError(f"--{flag.replace('_', '-')} is {getattr(args, flag)}; it must be at least 1")
+    if args.steps < 0 or args.warmup < 0:
+        raise TrainError("--steps and --warmup must not be negative")
+    if args.vocab > 65536:
+        raise TrainError(f"--vocab {args.vocab} does not fit uint16 token files; at most 65536")
+    if args.seq > args.max_positions:
+        raise TrainError(f"--seq {args.seq} exceeds --max-positions {args.max_positions}; "
+                         "raise --max-positions or lower --seq")
+    for flag in ("bos", "eos", "pad"):
+        if not 0 <= getattr(args, flag) < args.vocab:
+            raise TrainError(f"--{flag} {getattr(args, flag)} is outside the vocabulary of {args.vocab} tokens")
+    for path, flag, ids in ((args.train, "--train", train), (args.valid, "--valid", valid)):
+        if len(ids) < args.seq + 1:
+            raise TrainError(f"{path} ({flag}): holds {len(ids)} tokens, fewer than --seq + 1 = {args.seq + 1}; "
+                             "lower --seq")
+        if int(ids[0]) != args.bos:
+            raise TrainError(f"{path} ({flag}): token at byte offset 0 is {int(ids[0])}, but documents start with "
+                             f"--bos {args.bos}; pass the tokenizer's BOS id")
+
+
+def _finite(v):
+    """_finite maps NaN and infinities to None, which JSON can hold."""
+    return v if math.isfinite(v) else None
+
+
+def eval_line(e):
+    """eval_line formats one eval record for stderr and the log; "-" marks no value (no steps yet, or NaN)."""
+    def opt(v, fmt):
+        return "-" if v is None else format(v, fmt)
+
+    return (f"step {e['step']} train_loss {opt(e['train_loss'], '.4f')} act_l1 {opt(e['act_l1'], '.5f')} "
+            f"valid_loss {opt(e['valid_loss'], '.4f')} zero_frac {e['zero_frac']:.4f} lr {e['lr']:.3e} "
+            f"tok/s {e['tokens_per_s']:.0f} elapsed {e['elapsed_s']:.1f}s")
+
+
+def run(args):
+    """run trains, writes DIR's three files, and returns (model with the best weights, log)."""
+    torch.set_num_threads(args.threads)
+    torch.use_deterministic_algorithms(True)
+    blas = blas_in_use(args.threads)
+    train = read_tokens(args.train, args.vocab, "--train")
+    valid = read_tokens(args.valid, args.vocab, "--valid")
+    check_args(args, train, valid)
+    os.makedirs(args.out, exist_ok=True)
+    torch.manual_seed(args.seed)
+    rng = np.random.Generator(np.random.PCG64(args.seed))
+    model = OPTDecoder(args.vocab, args.hidden, args.layers, args.heads, args.ffn, args.max_positions, args.seed)
+    opt = torch.optim.AdamW(param_groups(model, args.weight_decay), lr=args.lr, betas=(0.9, 0.95), eps=1e-8)
+    starts_valid = validation_windows(valid, args.seq, args.eval_windows)
+    n_params = sum(p.numel() for p in model.parameters())
+
+    t0 = time.monotonic()
+    evals, best = [], None
+    sums = {"ce": 0.0, "l1": 0.0, "n": 0, "train_s": 0.0}
+
+    def do_eval(step, lr_now):
+        nonlocal best
+        model.eval()
+        vloss, zf = evaluate(model, valid, starts_valid, args.seq, args.batch)
+        model.train()
+        n = max(sums["n"], 1)
+        e = {"step": step, "train_loss": _finite(sums["ce"] / n) if sums["n"] else None,
+             "act_l1": _finite(sums["l1"] / n) if sums["n"] else None, "valid_loss": _finite(vloss), "zero_frac": zf,
+             "lr": lr_now, "tokens_per_s": sums["n"] * args.batch * args.seq / max(sums["train_s"], 1e-9),
+             "elapsed_s": time.monotonic() - t0}
+        line = eval_line(e)
+        e["line"] = line
+        print(line, file=sys.stderr, flush=True)
+        if args.log:
+            with open(args.log, "a", encoding="utf-8") as f:
+                f.write(line + "\n")
+        evals.append(e)
+        if best is None or vloss < best[1]:  # a NaN loss never wins
+            best = (step, vloss, {k: v.detach().clone() for k, v in model.state_dict().items()})
+        sums.update(ce=0.0, l1=0.0, n=0, train_s=0.0)
+
+    do_eval(0, lr_at(0, args.steps, args.lr, args.warmup))
+    for step in range(args.steps):
+        ts = time.monotonic()
+        lr_now = lr_at(step, args.steps, args.lr, args.warmup)
+        for g in opt.param_groups:
+            g["lr"] = lr_now
+        w = windows(train, rng.integers(0, len(train) - args.seq, size=args.batch), args.seq)
+        if args.act_l1 > 0:
+            logits, act_mean, _ = model(w[:, :-1], act_stats=True)
+        else:
+            logits, act_mean = model(w[:, :-1]), None
+        ce = F.cross_entropy(logits.reshape(-1, args.vocab), w[:, 1:].reshape(-1))
+        loss = ce if act_mean is None else ce + args.act_l1 * act_mean
+        opt.zero_grad(set_to_none=True)
+        loss.backward()
+        torch.nn.utils.clip_grad_norm_(model.parameters(), 1.0)
+        opt.step()
+        sums["ce"] += float(ce)
+        sums["l1"] += 0.0 if act_mean is None else args.act_l1 * float(act_mean)
+        sums["n"] += 1
+        sums["train_s"] += time.monotonic() - ts
+        if (step + 1) % args.eval_every == 0 or step + 1 == args.steps:
+            do_eval(step + 1, lr_now)
+
+    model.load_state_dict(best[2])
+    names = [n for n, _ in model.named_parameters()]
+    write_atomic(os.path.join(args.out, "model.safetensors"), safetensors_bytes({n: best[2][n] for n in names}))
+    write_atomic(os.path.join(args.out, "config.json"), (json.dumps(opt_config(args), indent=2) + "\n").encode())
+    log = {"args": vars(args), "torch_version": torch.__version__, "blas": blas, "threads": args.threads,
+           "parameters": n_params, "tokens_seen": args.steps * args.batch * args.seq,
+           "wall_time_s": time.monotonic() - t0,
+           "weight_decay_on": "q/k/v/out_proj and fc1/fc2 weight matrices; none on biases, LayerNorms, "
+                              "embed_tokens (tied head) and embed_positions",
+           "evals": evals, "best_step": best[0], "best_valid_loss": best[1]}
+    write_atomic(os.path.join(args.out, "train_log.json"), (json.dumps(log, indent=2) + "\n").encode())
+    return model, log
+
+
+def parse_args(argv=None):
+    """parse_args reads the command line."""
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--train", required=True, help="training split, little-endian uint16 token ids")
+    ap.add_argument("--valid", required=True, help="validation split, little-endian uint16 token ids")
+    ap.add_argument("--vocab", type=int, required=True, help="vocabulary size")
+    ap.add_argument("--out", required=True, help="output checkpoint directory")
+    ap.add_argument("--layers", type=int, default=4)
+    ap.add_argument("--hidden", type=int, default=128)
+    ap.add_argument("--heads", type=int, default=4)
+    ap.add_argument("--ffn", type=int, default=512)
+    ap.add_argument("--seq", type=int, default=256, help="training window length in tokens")
+    ap.add_argument("--batch", type=int, default=32, help="windows per step")
+    ap.add_argument("--steps", type=int, required=True, help="optimiser steps")
+    ap.add_argument("--lr", type=float, default=3e-3, help="peak learning rate")
+    ap.add_argument("--warmup", type=int, default=200, help="linear warmup steps")
+    ap.add_argument("--weight-decay", type=float, default=0.1)
+    ap.add_argument("--act-l1", type=float, default=0.0, help="weight of the mean post-ReLU activation in the loss")
+    ap.add_argument("--seed", type=int, default=1)
+    ap.add_argument("--threads", type=int, default=2, help="torch and OpenBLAS threads")
+    ap.add_argument("--bos", type=int, default=2, help="BOS id (open OPT checkpoints use 2)")
+    ap.add_argument("--eos", type=int, default=2, help="EOS id (open OPT checkpoints use 2)")
+    ap.add_argument("--pad", type=int, default=1, help="padding id (open OPT checkpoints use 1)")
+    ap.add_argument("--max-positions", type=int, default=512)
+    ap.add_argument("--eval-every", type=int, default=200, help="steps between validation evals")
+    ap.add_argument("--eval-windows", type=int, default=64, help="validation windows of --seq tokens per eval")
+    ap.add_argument("--log", help="text file to append the eval lines to")
+    return ap.parse_args(argv)
+
+
+def main(argv=None):
+    """main is the command line entry point; it returns the exit status."""
+    args = parse_args(argv)
+    try:
+        run(args)
+    except TrainError as e:
+        print(f"train: {e}", file=sys.stderr)
+        return 2
+    except OSError as e:  # e.g. --out or --log not writable; the message names the path
+        print(f"train: writing outputs: {e}; check the --out and --log paths", file=sys.stderr)
+        return 1
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
