@@ -377,8 +377,6 @@ func (m *Model) attendHead(out, q []float32, s *Session, li, head, n int, scores
 	return scores
 }
 
-
-
 // headColumns expands head indices to the indices of their hd-wide slices.
 func headColumns(heads []int32, hd int) []int32 {
 	idx := make([]int32, 0, len(heads)*hd)
@@ -389,7 +387,6 @@ func headColumns(heads []int32, hd int) []int32 {
 	}
 	return idx
 }
-
 
 // denseHeadNorms runs the full attention for row r on the side (nothing is
 // cached) and returns the L2 norm of each head's output: the oracle's

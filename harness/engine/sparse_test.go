@@ -72,7 +72,7 @@ func TestBatchedAndGatheredSparsePathsAgree(t *testing.T) {
 // groups' keys and values are never computed.
 type groupHook struct{ keep int }
 
-func (g groupHook) Heads(*Token) []int32 { return iota32(g.keep) }
+func (g groupHook) Heads(*Token) []int32   { return iota32(g.keep) }
 func (g groupHook) Neurons(*Token) []int32 { return nil }
 
 func TestSkippedKeyValueHeadsEqualZeroedWeights(t *testing.T) {
