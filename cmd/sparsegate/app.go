@@ -53,6 +53,7 @@ func commands() []command {
 	return []command{
 		{"inspect", "describe a checkpoint: family, sizes, dtypes, shapes, tokenizer, weights hash", inspectUsage, runInspect},
 		{"score", "score a text file with a checkpoint: tokens, mean NLL, perplexity, bits per byte", scoreUsage, runScore},
+		{"sparsify", "make a sparse build from a dense checkpoint: calibrate per-layer predictors", sparsifyUsage, runSparsify},
 		{"synth", "write a random-weight checkpoint of a family (for smoke tests and benchmarks)", synthUsage, runSynth},
 		{"version", "print the version", "usage: sparsegate version\n", runVersion},
 		{"help", "show help for a command", "usage: sparsegate help [COMMAND]\n", runHelp},

@@ -23,9 +23,13 @@
 // # Sparsity hook
 //
 // With no Hook the dense batched path runs unchanged. With a Hook, each token
-// of each layer asks the hook which heads and which neurons to keep. Keys and
-// values are computed for every head (later tokens may attend with a head
-// this token skipped), queries, attention and the output projection only for
-// the kept heads; the MLP computes only the kept neurons of its up (and gate)
-// projection and reads only their columns of the down projection.
+// of each layer asks the hook which heads and which neurons to keep. Only the
+// kept heads' queries, attention and output-projection columns are computed,
+// and only the keys and values of the key/value heads they need; a key/value
+// head nobody needed at a position is marked absent in the cache, and later
+// queries of that head attend past the position (a skipped head contributes
+// nothing there). The MLP computes only the kept neurons of its up (and gate)
+// projection and reads only their columns of the down projection; when the
+// rows of a batch keep most neurons, batched dense products with the dropped
+// neurons zeroed give the same bits faster.
 package engine

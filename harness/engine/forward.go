@@ -445,7 +445,7 @@ func (m *Model) mlp(st *state, li int) {
 				return act
 			}
 			if sel := st.hook.Neurons(tok); sel != nil {
-				idx[r] = append([]int32(nil), sel...) // the hook may reuse its slice
+				idx[r] = append(make([]int32, 0, len(sel)), sel...) // the hook may reuse its slice; empty keeps none
 				kept += len(sel)
 			} else {
 				kept += f

@@ -1,0 +1,270 @@
+package sparsity
+
+import (
+	"cmp"
+	"math"
+	"slices"
+
+	"sparsegate/harness/engine"
+	"sparsegate/harness/kernels"
+)
+
+// HookOptions choose how a build's hook runs.
+type HookOptions struct {
+	// Dense forces the listed units to run dense, whatever their rule (what
+	// bisect toggles). Units outside the model are ignored.
+	Dense map[Unit]bool
+	// Stats, when set, accumulates what every non-dense unit of the build
+	// kept (units forced dense count as keeping all).
+	Stats *Stats
+	// Recall also measures, per token, the recall of the kept set against
+	// the oracle set of the same size; it costs a Token.Dense call per unit.
+	Recall bool
+}
+
+// Hook returns an engine.Hook that applies the build's rules token by token.
+// The hook keeps scratch buffers, so it is for one goroutine (one engine call
+// at a time); make one hook per goroutine. Its selections allocate nothing
+// per token (what the engine allocates, such as Token.Dense, is the engine's).
+func (b *Build) Hook(opts HookOptions) engine.Hook {
+	cfg := b.Base.Config
+	h := &hook{
+		sel:    make([][2]selector, cfg.Layers),
+		stats:  opts.Stats,
+		recall: opts.Recall,
+		none:   make([]int32, 0),
+	}
+	width := max(cfg.FFN, cfg.Heads)
+	h.out[0], h.out[1] = make([]int32, 0, width), make([]int32, 0, width)
+	h.oracle = make([]int32, 0, width)
+	h.order = make([]int32, width)
+	h.mag = make([]float32, width)
+	for l := range h.sel {
+		for _, c := range Components() {
+			u := Unit{Layer: l, Component: c}
+			s := &h.sel[l][c.index()]
+			s.unit, s.rule, s.width = u, b.Rule(u), b.Width(u)
+			s.dense = s.rule.Mode == Dense || opts.Dense[u]
+			if s.dense {
+				continue
+			}
+			switch s.rule.Mode {
+			case Static:
+				s.keep = make([]int32, len(s.rule.Keep))
+				for i, v := range s.rule.Keep {
+					s.keep[i] = int32(v)
+				}
+			case PredictorMode:
+				p := b.preds[u]
+				s.pred = &scorer{p: p,
+					w1:    kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1},
+					w2:    kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2},
+					rows1: iota32(p.Rank), all: iota32(p.Out)}
+				if len(h.hidden) < p.Rank {
+					h.hidden = make([]float32, p.Rank)
+				}
+			}
+		}
+	}
+	return h
+}
+
+// hook is the engine.Hook of a build.
+type hook struct {
+	sel    [][2]selector // by layer, mlp then attention
+	stats  *Stats
+	recall bool
+
+	// The engine may keep a returned list until the call for the next token
+	// returns, so selections alternate between two buffers.
+	out         [2][]int32
+	flip        int
+	none        []int32
+	oracle      []int32
+	order       []int32
+	mag, hidden []float32
+}
+
+// selector is one unit's rule, ready to run.
+type selector struct {
+	unit  Unit
+	rule  Rule
+	width int
+	dense bool    // rule dense or forced dense
+	keep  []int32 // static
+	pred  *scorer // predictor
+	st    *UnitStats
+}
+
+// scorer evaluates a predictor with its matrices bound once. It gives
+// Predictor.Scores bit for bit: LinearGather over every row equals Linear
+// element for element (the kernels' contract), and runs in the calling
+// goroutine without allocating.
+type scorer struct {
+	p          *Predictor
+	w1, w2     kernels.Mat
+	rows1, all []int32 // 0..Rank-1 and 0..Out-1
+}
+
+func (s *scorer) scores(dst, hidden, x []float32) {
+	kernels.LinearGather(hidden, x, &s.w1, s.p.B1, s.rows1)
+	kernels.ReLU(hidden)
+	kernels.LinearGather(dst, hidden, &s.w2, s.p.B2, s.all)
+}
+
+// iota32 returns 0, 1, …, n-1.
+func iota32(n int) []int32 {
+	s := make([]int32, n)
+	for i := range s {
+		s[i] = int32(i)
+	}
+	return s
+}
+
+// Heads implements engine.Hook.
+func (h *hook) Heads(t *engine.Token) []int32 {
+	return h.choose(&h.sel[t.Layer][1], t.Input, t.PrevLayerInput, t.Dense)
+}
+
+// Neurons implements engine.Hook.
+func (h *hook) Neurons(t *engine.Token) []int32 {
+	return h.choose(&h.sel[t.Layer][0], t.Input, t.PrevLayerInput, t.Dense)
+}
+
+// choose applies s's rule to one token, given its component input, the
+// previous layer's input and its dense magnitudes (Token.Dense): nil for all
+// units, otherwise an ascending list (h.none when empty) that stays valid
+// through the next call.
+func (h *hook) choose(s *selector, input, prev []float32, dense func() []float32) []int32 {
+	var kept []int32
+	h.flip ^= 1
+	out := h.out[h.flip]
+	switch {
+	case s.dense:
+		h.record(s, dense, nil)
+		return nil
+	case s.rule.Mode == Static:
+		kept = s.keep
+	case s.rule.Mode == Oracle:
+		kept = topKInto(out, h.order, absInto(h.mag[:s.width], dense()), s.rule.K)
+	case s.rule.Mode == Threshold:
+		thr := s.rule.Threshold
+		if s.rule.On == OnInput {
+			thr *= rms(input)
+		}
+		kept = out[:0]
+		for i, v := range dense() {
+			if math.Abs(float64(v)) > thr {
+				kept = append(kept, int32(i))
+			}
+		}
+	case s.rule.Mode == PredictorMode:
+		x := input
+		if s.rule.Input == InputPrevious {
+			x = prev
+		}
+		scores := h.mag[:s.width]
+		s.pred.scores(scores, h.hidden[:s.pred.p.Rank], x)
+		kept = topKInto(out, h.order, scores, s.rule.K)
+	default:
+		panic("sparsity: hook reached a rule that Open should have refused")
+	}
+	h.record(s, dense, kept)
+	if len(kept) == 0 {
+		return h.none
+	}
+	return kept[:len(kept):len(kept)]
+}
+
+// record adds one token's outcome to the statistics; kept nil means all.
+func (h *hook) record(s *selector, dense func() []float32, kept []int32) {
+	if h.stats == nil {
+		return
+	}
+	if s.st == nil {
+		s.st = h.stats.get(s.unit, s.width)
+	}
+	n := s.width
+	if kept != nil {
+		n = len(kept)
+	}
+	s.st.Tokens++
+	s.st.Kept += int64(n)
+	if !h.recall || n == 0 {
+		return
+	}
+	hits := n
+	if kept != nil {
+		oracle := topKInto(h.oracle, h.order, absInto(h.mag[:s.width], dense()), n)
+		hits = intersectCount(kept, oracle)
+	}
+	s.st.RecallHits += int64(hits)
+	s.st.RecallOf += int64(n)
+}
+
+// absInto writes |src| into dst and returns dst.
+func absInto(dst, src []float32) []float32 {
+	for i, v := range src {
+		dst[i] = float32(math.Abs(float64(v)))
+	}
+	return dst
+}
+
+// rms is the root mean square of x, summed in ascending order in float64.
+func rms(x []float32) float64 {
+	var s float64
+	for _, v := range x {
+		s += float64(v) * float64(v)
+	}
+	return math.Sqrt(s / float64(len(x)))
+}
+
+// topKInto returns, ascending, the indices of the k largest values (ties go
+// to the lower index, NaN ranks below everything), appended to dst[:0];
+// order is scratch of at least len(vals). It selects the same set as TopK
+// without allocating.
+func topKInto(dst, order []int32, vals []float32, k int) []int32 {
+	if k < 0 || k > len(vals) {
+		panic("sparsity: topKInto k out of range")
+	}
+	order = order[:len(vals)]
+	for i := range order {
+		order[i] = int32(i)
+	}
+	slices.SortFunc(order, func(a, b int32) int {
+		va, vb := vals[a], vals[b]
+		na, nb := va != va, vb != vb
+		switch {
+		case na != nb:
+			if na {
+				return 1
+			}
+			return -1
+		case !na && va != vb:
+			if va > vb {
+				return -1
+			}
+			return 1
+		}
+		return cmp.Compare(a, b)
+	})
+	dst = append(dst[:0], order[:k]...)
+	slices.Sort(dst)
+	return dst
+}
+
+// intersectCount counts the common elements of two ascending lists.
+func intersectCount(a, b []int32) int {
+	n, i, j := 0, 0, 0
+	for i < len(a) && j < len(b) {
+		switch {
+		case a[i] < b[j]:
+			i++
+		case a[i] > b[j]:
+			j++
+		default:
+			n, i, j = n+1, i+1, j+1
+		}
+	}
+	return n
+}
