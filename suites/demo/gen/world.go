@@ -42,6 +42,10 @@ type World struct {
 	Statuses []string
 	// Wording lists, per status, how a log line says it; %s is the depot.
 	Wording map[string][]string
+	// Codes is the network's codebook of three-letter depot codes; each depot
+	// table pairs its depots with codes drawn afresh from it, so a pairing is
+	// known only from the table itself.
+	Codes []string
 }
 
 // NewWorld draws the network's depots: invented names, a prefix and a suffix.
@@ -59,7 +63,16 @@ func NewWorld(seed uint64) *World {
 		}
 	}
 	r.Shuffle(len(all), func(i, j int) { all[i], all[j] = all[j], all[i] })
+	codes := map[string]bool{}
+	var book []string
+	for len(book) < 150 {
+		if c := code(r); !codes[c] {
+			codes[c] = true
+			book = append(book, c)
+		}
+	}
 	return &World{
+		Codes:    book,
 		Depots:   all[:72],
 		Weekdays: []string{"Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday"},
 		Statuses: []string{"on time", "delayed", "damaged", "returned"},
@@ -122,18 +135,15 @@ func (w *World) question(r *rand.Rand, family string) (ctx, answer string, wrong
 	case "lookup":
 		n := 3 + r.IntN(4)
 		depots := pick(r, w.Depots, n)
-		codes := make([]string, n)
+		codes := pick(r, w.Codes, n)
 		seen := map[string]bool{}
-		for i := range codes {
-			for codes[i] == "" || seen[codes[i]] {
-				codes[i] = code(r)
-			}
-			seen[codes[i]] = true
+		for _, c := range codes {
+			seen[c] = true
 		}
 		var b strings.Builder
 		b.WriteString("Depot table:\n")
 		for i := range depots {
-			fmt.Fprintf(&b, "%s = %s\n", depots[i], codes[i])
+			fmt.Fprintf(&b, "- %s = %s\n", depots[i], codes[i])
 		}
 		q := r.IntN(n)
 		fmt.Fprintf(&b, "Code for %s:", depots[q])
@@ -143,7 +153,7 @@ func (w *World) question(r *rand.Rand, family string) (ctx, answer string, wrong
 			}
 		}
 		for len(wrong) < 3 { // tables of three: one distractor from outside
-			c := code(r)
+			c := w.Codes[r.IntN(len(w.Codes))]
 			if !seen[c] {
 				seen[c] = true
 				wrong = append(wrong, " "+c)

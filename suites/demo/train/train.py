@@ -88,7 +88,7 @@ class OPTDecoder(nn.Module):
     Its parameter names (named_parameters / state_dict) are exactly the open
     OPT checkpoint names, model.decoder.*."""
 
-    def __init__(self, vocab, hidden, layers, heads, ffn, max_positions, seed):
+    def __init__(self, vocab, hidden, layers, heads, ffn, max_positions, seed, embed_std=0.02):
         super().__init__()
         if hidden % heads:
             raise TrainError(f"--hidden {hidden} is not a multiple of --heads {heads}; change one of them")
@@ -108,8 +108,10 @@ class OPTDecoder(nn.Module):
             return _params(weight=torch.ones(hidden), bias=torch.zeros(hidden))
 
         dec = nn.Module()
-        dec.embed_tokens = _params(weight=normal((vocab, hidden)))
-        dec.embed_positions = _params(weight=normal((max_positions + POS_OFFSET, hidden)))
+        # A larger embedding scale (--embed-std) makes each layer's update small
+        # against the residual stream it joins.
+        dec.embed_tokens = _params(weight=normal((vocab, hidden), embed_std))
+        dec.embed_positions = _params(weight=normal((max_positions + POS_OFFSET, hidden), embed_std))
         dec.layers = nn.ModuleList()
         for _ in range(layers):
             layer = nn.Module()
@@ -330,7 +332,8 @@ def run(args):
     os.makedirs(args.out, exist_ok=True)
     torch.manual_seed(args.seed)
     rng = np.random.Generator(np.random.PCG64(args.seed))
-    model = OPTDecoder(args.vocab, args.hidden, args.layers, args.heads, args.ffn, args.max_positions, args.seed)
+    model = OPTDecoder(args.vocab, args.hidden, args.layers, args.heads, args.ffn, args.max_positions, args.seed,
+                       embed_std=args.embed_std)
     opt = torch.optim.AdamW(param_groups(model, args.weight_decay), lr=args.lr, betas=(0.9, 0.95), eps=1e-8)
     starts_valid = validation_windows(valid, args.seq, args.eval_windows)
     n_params = sum(p.numel() for p in model.parameters())
@@ -415,6 +418,7 @@ def parse_args(argv=None):
     ap.add_argument("--lr", type=float, default=3e-3, help="peak learning rate")
     ap.add_argument("--warmup", type=int, default=200, help="linear warmup steps")
     ap.add_argument("--weight-decay", type=float, default=0.1)
+    ap.add_argument("--embed-std", type=float, default=0.02, help="standard deviation of the token and position embeddings at initialisation")
     ap.add_argument("--act-l1", type=float, default=0.0, help="weight of the mean post-ReLU activation in the loss")
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--threads", type=int, default=2, help="torch and OpenBLAS threads")
