@@ -1,0 +1,201 @@
+package sparsity
+
+import (
+	"fmt"
+		"os"
+	"path/filepath"
+	"sync"
+	"testing"
+
+	"sparsegate/harness/checkpoint"
+	"sparsegate/harness/engine"
+	"sparsegate/harness/kernels"
+	"sparsegate/harness/synth"
+)
+
+// The speed benchmarks run on an OPT-125M-shaped checkpoint with f16 weights
+// (SPARSEGATE_BENCH_MODEL, or one written once per test binary). Compare the
+// dense and sparse sub-benchmarks of one run as ratios (.ci/bench does).
+var benchBase struct {
+	once sync.Once
+	dir  string
+	err  error
+}
+
+func benchModel(b *testing.B) *engine.Model {
+	dir := os.Getenv("SPARSEGATE_BENCH_MODEL")
+	if dir == "" {
+		benchBase.once.Do(func() {
+			tmp, err := os.MkdirTemp("", "sparsegate-bench-")
+			if err != nil {
+				benchBase.err = err
+				return
+			}
+			benchBase.dir = filepath.Join(tmp, "opt-125m")
+			benchBase.err = synth.Write(benchBase.dir, synth.OPT125M(), synth.Options{Seed: 1, DType: checkpoint.F16})
+		})
+		if benchBase.err != nil {
+			b.Fatal(benchBase.err)
+		}
+		dir = benchBase.dir
+	}
+	m, err := engine.Load(dir, engine.Options{Threads: 2})
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.Cleanup(func() { m.Close() })
+	return m
+}
+
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if benchBase.dir != "" {
+		os.RemoveAll(filepath.Dir(benchBase.dir))
+	}
+	os.Exit(code)
+}
+
+// predictorBuild makes an in-memory build: per layer an MLP predictor keeping
+// keepMLP of the neurons and, when keepHeads > 0, a head predictor.
+func predictorBuild(b *testing.B, m *engine.Model, keepMLP, keepHeads float64) *Build {
+	cfg := m.Config
+	sha, err := m.Weights().SHA256()
+	if err != nil {
+		b.Fatal(err)
+	}
+	man := &Manifest{Base: Base{Path: "../base", SHA256: sha}, Layers: make([]LayerRules, cfg.Layers)}
+	preds := map[Unit]*Predictor{}
+	for l := range cfg.Layers {
+		man.Layers[l] = LayerRules{Layer: l, MLP: Rule{Mode: PredictorMode, K: int(keepMLP * float64(cfg.FFN)), Rank: 64, Input: InputSelf},
+			Attention: Rule{Mode: Dense}}
+		preds[Unit{l, MLP}] = randomPredictor(cfg.Hidden, 64, cfg.FFN, uint64(l))
+		if keepHeads > 0 {
+			man.Layers[l].Attention = Rule{Mode: PredictorMode, K: int(keepHeads * float64(cfg.Heads)), Rank: 16, Input: InputSelf}
+			preds[Unit{l, Attention}] = randomPredictor(cfg.Hidden, 16, cfg.Heads, uint64(100+l))
+		}
+	}
+	bld, err := New(m, man, preds)
+	if err != nil {
+		b.Fatal(err)
+	}
+	return bld
+}
+
+// BenchmarkMLPBlockDecode times one token through one layer's MLP block:
+// dense (up, ReLU, down) against a predictor keeping 10% of the neurons
+// (predictor scores, top-k, gathered up rows, scattered down columns).
+func BenchmarkMLPBlockDecode(b *testing.B) {
+	m := benchModel(b)
+	cfg := m.Config
+	bld := predictorBuild(b, m, 0.1, 0)
+	x := make([]float32, cfg.Hidden)
+	for i := range x {
+		x[i] = float32(i%7) * 0.1
+	}
+	// The engine's layer-0 weights, reached through a one-token forward with
+	// a hook that times nothing: simpler to rebuild the Mats from the tensors.
+	w := m.Weights()
+	mat := func(name string, out, in int) *kernels.Mat {
+		t, _ := w.Lookup(name)
+		h, err := t.Uint16s()
+		if err != nil {
+			b.Fatal(err)
+		}
+		return &kernels.Mat{DType: kernels.F16, Out: out, In: in, Half: h}
+	}
+	up := mat("model.decoder.layers.0.fc1.weight", cfg.FFN, cfg.Hidden)
+	down := mat("model.decoder.layers.0.fc2.weight", cfg.Hidden, cfg.FFN)
+	hid, y := make([]float32, cfg.FFN), make([]float32, cfg.Hidden)
+	b.Run("dense", func(b *testing.B) {
+		for range b.N {
+			kernels.Linear(hid, x, 1, up, nil, 1)
+			kernels.ReLU(hid)
+			kernels.Linear(y, hid, 1, down, nil, 1)
+		}
+	})
+	p := bld.Predictor(Unit{0, MLP})
+	scores, ph := make([]float32, cfg.FFN), make([]float32, p.Rank)
+	k := bld.Rule(Unit{0, MLP}).K
+	var idx []int32
+	b.Run("keep10", func(b *testing.B) {
+		for range b.N {
+			p.Scores(scores, ph, x)
+			idx = TopK(idx, scores, k)
+			kernels.LinearGather(hid[:k], x, up, nil, idx)
+			kernels.ReLU(hid[:k])
+			kernels.LinearScatterIn(y, hid[:k], down, nil, idx)
+		}
+	})
+}
+
+// BenchmarkDecodeStep times whole decode steps (after a 64-token prompt)
+// through the engine: dense, and with 10% of the MLP neurons and 50% of the
+// heads kept by predictors (their cost included).
+func BenchmarkDecodeStep(b *testing.B) {
+	m := benchModel(b)
+	for _, c := range []struct {
+		name string
+		hook func() engine.Hook
+	}{
+		{"dense", func() engine.Hook { return nil }},
+		{"mlp10_heads50", func() engine.Hook { return predictorBuild(b, m, 0.1, 0.5).Hook(HookOptions{}) }},
+	} {
+		b.Run(c.name, func(b *testing.B) {
+			hook := c.hook()
+			prompt := make([]int, 64)
+			for i := range prompt {
+				prompt[i] = (i*7919 + 13) % m.Config.VocabSize
+			}
+			logits := make([]float32, m.Config.VocabSize)
+			b.ResetTimer()
+			for range b.N {
+				b.StopTimer()
+				s := m.NewSession()
+				if _, err := m.Forward([]*engine.Session{s}, [][]int{prompt}, hook); err != nil {
+					b.Fatal(err)
+				}
+				b.StartTimer()
+				for step := range 8 {
+					h, err := m.Forward([]*engine.Session{s}, [][]int{{(step*31 + 5) % m.Config.VocabSize}}, hook)
+					if err != nil {
+						b.Fatal(err)
+					}
+					m.Logits(logits, h, 1)
+				}
+			}
+			b.ReportMetric(float64(8*b.N)/b.Elapsed().Seconds(), "tok/s")
+		})
+	}
+}
+
+// BenchmarkPrefillSparse times prefill of 1, 8, 64 and 512 tokens, dense and
+// with 10% MLP / 50% heads kept: as the batch grows, the engine switches
+// blocks to dense products once rows keep most neurons, so sparse prefill
+// never falls far behind dense.
+func BenchmarkPrefillSparse(b *testing.B) {
+	m := benchModel(b)
+	for _, n := range []int{1, 8, 64, 512} {
+		for _, c := range []struct {
+			name string
+			hook func() engine.Hook
+		}{
+			{"dense", func() engine.Hook { return nil }},
+			{"mlp10_heads50", func() engine.Hook { return predictorBuild(b, m, 0.1, 0.5).Hook(HookOptions{}) }},
+		} {
+			b.Run(fmt.Sprintf("%d/%s", n, c.name), func(b *testing.B) {
+				hook := c.hook()
+				toks := make([]int, n)
+				for i := range toks {
+					toks[i] = (i*7919 + 13) % m.Config.VocabSize
+				}
+				for range b.N {
+					s := m.NewSession()
+					if _, err := m.Forward([]*engine.Session{s}, [][]int{toks}, hook); err != nil {
+						b.Fatal(err)
+					}
+				}
+				b.ReportMetric(float64(n*b.N)/b.Elapsed().Seconds(), "tok/s")
+			})
+		}
+	}
+}
