@@ -480,7 +480,11 @@ func (m *Model) mlp(st *state, li int) {
 			kernels.Linear(y, u, 1, L.down, L.downB, m.threads)
 		} else {
 			m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
-			kernels.LinearScatterIn(y, u[:len(idx[r])], L.down, L.downB, idx[r])
+			down := L.down
+			if L.downT != nil {
+				down = L.downT
+			}
+			kernels.LinearScatterIn(y, u[:len(idx[r])], down, L.downB, idx[r])
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)

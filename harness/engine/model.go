@@ -45,6 +45,7 @@ type layer struct {
 	qkvB, qB, kB, vB, oB []float32
 	mlpNormW, mlpNormB   []float32
 	up, gate, down       *kernels.Mat
+	downT                *kernels.Mat // neuron-major copy of down (Options.NeuronMajor), or nil
 	upB, downB           []float32
 }
 
@@ -55,6 +56,12 @@ type Options struct {
 	Threads int
 	// NoTokenizer skips loading the tokenizer files even when present.
 	NoTokenizer bool
+	// NeuronMajor keeps, for layouts that store the MLP down projection
+	// output-major (OPT, Llama), a neuron-major copy in memory, so a sparse
+	// MLP reads only its kept neurons' weights instead of touching every cache
+	// line of every row. It costs FFN×Hidden stored values per layer; sparse
+	// builds turn it on. Results are the same bits either way.
+	NeuronMajor bool
 }
 
 // Load opens a checkpoint directory: config.json, the safetensors weights
@@ -77,6 +84,13 @@ func Load(dir string, opts Options) (*Model, error) {
 	if err := m.bind(); err != nil {
 		w.Close()
 		return nil, err
+	}
+	if opts.NeuronMajor {
+		for i := range m.layers {
+			if d := m.layers[i].down; d != nil && !d.Transposed {
+				m.layers[i].downT = neuronMajor(d)
+			}
+		}
 	}
 	if !opts.NoTokenizer && hasTokenizer(dir) {
 		tok, err := tokenize.LoadDir(dir)
@@ -356,6 +370,28 @@ func ignorable(f checkpoint.Family, name string) bool {
 		return true
 	}
 	return false
+}
+
+// neuronMajor copies an output-major matrix into In×Out storage (the
+// Transposed layout), keeping its dtype.
+func neuronMajor(w *kernels.Mat) *kernels.Mat {
+	t := &kernels.Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
+	if w.DType == kernels.F32 {
+		t.F32 = make([]float32, len(w.F32))
+		for j := 0; j < w.Out; j++ {
+			for k := 0; k < w.In; k++ {
+				t.F32[k*w.Out+j] = w.F32[j*w.In+k]
+			}
+		}
+		return t
+	}
+	t.Half = make([]uint16, len(w.Half))
+	for j := 0; j < w.Out; j++ {
+		for k := 0; k < w.In; k++ {
+			t.Half[k*w.Out+j] = w.Half[j*w.In+k]
+		}
+	}
+	return t
 }
 
 // ErrNonFinite marks scores computed from NaN or infinite logits.

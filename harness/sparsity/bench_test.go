@@ -39,7 +39,7 @@ func benchModel(b *testing.B) *engine.Model {
 		}
 		dir = benchBase.dir
 	}
-	m, err := engine.Load(dir, engine.Options{Threads: 2})
+	m, err := engine.Load(dir, engine.Options{Threads: 2, NeuronMajor: true})
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -63,7 +63,7 @@ func predictorBuild(b *testing.B, m *engine.Model, keepMLP, keepHeads float64) *
 	if err != nil {
 		b.Fatal(err)
 	}
-	man := &Manifest{Base: Base{Path: "../base", SHA256: sha}, Layers: make([]LayerRules, cfg.Layers)}
+	man := &Manifest{Base: Base{Path: "../base", SHA256: sha}, Predictors: "predictors.safetensors", Layers: make([]LayerRules, cfg.Layers)}
 	preds := map[Unit]*Predictor{}
 	for l := range cfg.Layers {
 		man.Layers[l] = LayerRules{Layer: l, MLP: Rule{Mode: PredictorMode, K: int(keepMLP * float64(cfg.FFN)), Rank: 64, Input: InputSelf},
@@ -105,6 +105,12 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	}
 	up := mat("model.decoder.layers.0.fc1.weight", cfg.FFN, cfg.Hidden)
 	down := mat("model.decoder.layers.0.fc2.weight", cfg.Hidden, cfg.FFN)
+	downT := &kernels.Mat{DType: kernels.F16, Out: cfg.Hidden, In: cfg.FFN, Transposed: true, Half: make([]uint16, len(down.Half))}
+	for j := 0; j < cfg.Hidden; j++ { // the neuron-major copy a sparse build keeps
+		for k := 0; k < cfg.FFN; k++ {
+			downT.Half[k*cfg.Hidden+j] = down.Half[j*cfg.FFN+k]
+		}
+	}
 	hid, y := make([]float32, cfg.FFN), make([]float32, cfg.Hidden)
 	b.Run("dense", func(b *testing.B) {
 		for range b.N {
@@ -123,7 +129,7 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 			idx = TopK(idx, scores, k)
 			kernels.LinearGather(hid[:k], x, up, nil, idx)
 			kernels.ReLU(hid[:k])
-			kernels.LinearScatterIn(y, hid[:k], down, nil, idx)
+			kernels.LinearScatterIn(y, hid[:k], downT, nil, idx)
 		}
 	})
 }

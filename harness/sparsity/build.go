@@ -69,7 +69,9 @@ func Open(dir string, opts OpenOptions) (*Build, error) {
 			return nil, err
 		}
 	}
-	base, err := engine.Load(baseDir, opts.Engine)
+	eopts := opts.Engine
+	eopts.NeuronMajor = true // masked MLPs read only their kept neurons' weights
+	base, err := engine.Load(baseDir, eopts)
 	if err != nil {
 		return nil, fmt.Errorf("%s: base: %w", path, err)
 	}

@@ -1,7 +1,6 @@
 package sparsity
 
 import (
-	"cmp"
 	"math"
 	"slices"
 
@@ -231,23 +230,7 @@ func topKInto(dst, order []int32, vals []float32, k int) []int32 {
 	for i := range order {
 		order[i] = int32(i)
 	}
-	slices.SortFunc(order, func(a, b int32) int {
-		va, vb := vals[a], vals[b]
-		na, nb := va != va, vb != vb
-		switch {
-		case na != nb:
-			if na {
-				return 1
-			}
-			return -1
-		case !na && va != vb:
-			if va > vb {
-				return -1
-			}
-			return 1
-		}
-		return cmp.Compare(a, b)
-	})
+	selectTop(order, vals, k) // linear-time selection; same set as a full sort
 	dst = append(dst[:0], order[:k]...)
 	slices.Sort(dst)
 	return dst

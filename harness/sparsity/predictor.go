@@ -3,7 +3,7 @@ package sparsity
 import (
 	"fmt"
 	"math"
-	"sort"
+	"slices"
 
 	"sparsegate/harness/kernels"
 )
@@ -58,7 +58,7 @@ func (p *Predictor) Scores(dst, hidden, x []float32) {
 }
 
 // TopK returns, in ascending order, the indices of the k largest scores (ties
-// go to the lower index), appended to dst[:0].
+// go to the lower index, NaN ranks last), appended to dst[:0].
 func TopK(dst []int32, scores []float32, k int) []int32 {
 	if k < 0 || k > len(scores) {
 		panic("sparsity: TopK k out of range")
@@ -67,8 +67,8 @@ func TopK(dst []int32, scores []float32, k int) []int32 {
 	for i := range idx {
 		idx[i] = int32(i)
 	}
-	sort.SliceStable(idx, func(a, b int) bool { return scores[idx[a]] > scores[idx[b]] })
+	selectTop(idx, scores, k)
 	dst = append(dst[:0], idx[:k]...)
-	sort.Slice(dst, func(a, b int) bool { return dst[a] < dst[b] })
+	slices.Sort(dst)
 	return dst
 }
