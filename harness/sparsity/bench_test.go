@@ -2,7 +2,7 @@ package sparsity
 
 import (
 	"fmt"
-		"os"
+	"os"
 	"path/filepath"
 	"sync"
 	"testing"
