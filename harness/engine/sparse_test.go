@@ -99,3 +99,19 @@ func TestSkippedKeyValueHeadsEqualZeroedWeights(t *testing.T) {
 	}
 	require.Equal(t, got, decodeLogProbs(t, m, toks, groupHook{keep: 2}))
 }
+
+// The neuron-major copy of the down projection changes memory layout only.
+func TestNeuronMajorGivesTheSameBits(t *testing.T) {
+	for _, f := range families {
+		t.Run(string(f), func(t *testing.T) {
+			m := tinyModel(t, f, 1, nil)
+			nm, err := Load(m.Dir, Options{Threads: 1, NeuronMajor: true})
+			require.NoError(t, err)
+			defer nm.Close()
+			toks := seq(20, 96, 15)
+			h := posHook{heads: m.Config.Heads}
+			want := decodeLogProbs(t, m, toks, h)
+			require.Equal(t, want, decodeLogProbs(t, nm, toks, h))
+		})
+	}
+}
