@@ -297,7 +297,11 @@ func (m *Model) attentionHooked(st *state, li int) {
 		if heads == nil {
 			kernels.Linear(y, a, 1, L.o, L.oB, m.threads)
 		} else {
-			kernels.LinearScatterIn(y, a[:nq*hd], L.o, L.oB, headColumns(heads, hd))
+			o := L.o
+			if L.oT != nil {
+				o = L.oT
+			}
+			kernels.LinearScatterInParallel(y, a[:nq*hd], o, L.oB, headColumns(heads, hd), m.threads)
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
@@ -328,7 +332,7 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 			idx = append(idx, int32(2*d)+j)
 		}
 		out := make([]float32, len(idx))
-		kernels.LinearGather(out, h, L.qkv, L.qkvB, idx)
+		kernels.LinearGatherParallel(out, h, L.qkv, L.qkvB, idx, m.threads)
 		nq, nk := len(heads)*hd, len(kc)
 		copy(q, out[:nq])
 		copy(k, out[nq:nq+nk])
@@ -342,9 +346,9 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 		return
 	}
 	kc := headColumns(groups, hd)
-	kernels.LinearGather(q[:len(heads)*hd], h, L.q, L.qB, headColumns(heads, hd))
-	kernels.LinearGather(k[:len(kc)], h, L.k, L.kB, kc)
-	kernels.LinearGather(v[:len(kc)], h, L.v, L.vB, kc)
+	kernels.LinearGatherParallel(q[:len(heads)*hd], h, L.q, L.qB, headColumns(heads, hd), m.threads)
+	kernels.LinearGatherParallel(k[:len(kc)], h, L.k, L.kB, kc, m.threads)
+	kernels.LinearGatherParallel(v[:len(kc)], h, L.v, L.vB, kc, m.threads)
 }
 
 // attendHead computes one query head's causal softmax attention over the
@@ -484,7 +488,7 @@ func (m *Model) mlp(st *state, li int) {
 			if L.downT != nil {
 				down = L.downT
 			}
-			kernels.LinearScatterIn(y, u[:len(idx[r])], down, L.downB, idx[r])
+			kernels.LinearScatterInParallel(y, u[:len(idx[r])], down, L.downB, idx[r], m.threads)
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
@@ -509,7 +513,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	if idx == nil {
 		kernels.Linear(dst, h, 1, L.up, L.upB, m.threads)
 	} else {
-		kernels.LinearGather(dst, h, L.up, L.upB, idx)
+		kernels.LinearGatherParallel(dst, h, L.up, L.upB, idx, m.threads)
 	}
 	if L.gate == nil {
 		m.activate(dst)
@@ -519,7 +523,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	if idx == nil {
 		kernels.Linear(g, h, 1, L.gate, nil, m.threads)
 	} else {
-		kernels.LinearGather(g, h, L.gate, nil, idx)
+		kernels.LinearGatherParallel(g, h, L.gate, nil, idx, m.threads)
 	}
 	kernels.SiLUMul(g, dst)
 	copy(dst, g)

@@ -45,7 +45,7 @@ type layer struct {
 	qkvB, qB, kB, vB, oB []float32
 	mlpNormW, mlpNormB   []float32
 	up, gate, down       *kernels.Mat
-	downT                *kernels.Mat // neuron-major copy of down (Options.NeuronMajor), or nil
+	downT, oT            *kernels.Mat // input-major copies of down and o (Options.NeuronMajor), or nil
 	upB, downB           []float32
 }
 
@@ -56,11 +56,12 @@ type Options struct {
 	Threads int
 	// NoTokenizer skips loading the tokenizer files even when present.
 	NoTokenizer bool
-	// NeuronMajor keeps, for layouts that store the MLP down projection
-	// output-major (OPT, Llama), a neuron-major copy in memory, so a sparse
-	// MLP reads only its kept neurons' weights instead of touching every cache
-	// line of every row. It costs FFN×Hidden stored values per layer; sparse
-	// builds turn it on. Results are the same bits either way.
+	// NeuronMajor keeps, for layouts that store the MLP down projection and
+	// the attention output projection output-major (OPT, Llama), input-major
+	// copies in memory, so a sparse MLP or a head-sparse attention reads only
+	// its kept neurons' or heads' weights instead of touching every cache line
+	// of every row. It costs (FFN+Heads·HeadDim)×Hidden stored values per
+	// layer; sparse builds turn it on. Results are the same bits either way.
 	NeuronMajor bool
 }
 
@@ -89,6 +90,9 @@ func Load(dir string, opts Options) (*Model, error) {
 		for i := range m.layers {
 			if d := m.layers[i].down; d != nil && !d.Transposed {
 				m.layers[i].downT = neuronMajor(d)
+			}
+			if o := m.layers[i].o; o != nil && !o.Transposed {
+				m.layers[i].oT = neuronMajor(o)
 			}
 		}
 	}

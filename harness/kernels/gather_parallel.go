@@ -1,0 +1,68 @@
+package kernels
+
+// gatherJob is how many kept outputs (or output columns) one job of the
+// parallel gathers handles. Jobs split only independent outputs, so results
+// equal the single-goroutine kernels bit for bit.
+const gatherJob = 64
+
+// LinearGatherParallel is LinearGather with the kept outputs split over up to
+// threads goroutines; the result is the same bits.
+func LinearGatherParallel(y, x []float32, w *Mat, bias []float32, idx []int32, threads int) {
+	if len(y) != len(idx) {
+		panic(msgGatherY)
+	}
+	jobs := (len(idx) + gatherJob - 1) / gatherJob
+	workers := workerCount(threads, jobs, len(idx)*w.In)
+	if workers <= 1 {
+		LinearGather(y, x, w, bias, idx)
+		return
+	}
+	runJobs(jobs, workers, func() func(int) {
+		return func(j int) {
+			r0, r1 := j*gatherJob, min((j+1)*gatherJob, len(idx))
+			LinearGather(y[r0:r1], x, w, bias, idx[r0:r1])
+		}
+	})
+}
+
+// LinearScatterInParallel is LinearScatterIn with the outputs split over up
+// to threads goroutines; the result is the same bits. It pays off for the
+// Transposed (input-major) layout, where each kept input is a contiguous row.
+func LinearScatterInParallel(y, h []float32, w *Mat, bias []float32, idx []int32, threads int) {
+	w.Check()
+	if !w.Transposed {
+		LinearScatterIn(y, h, w, bias, idx)
+		return
+	}
+	if len(h) != len(idx) {
+		panic(msgScatterH)
+	}
+	if len(y) != w.Out {
+		panic(msgScatterY)
+	}
+	if bias != nil && len(bias) != w.Out {
+		panic(msgScatterBias)
+	}
+	if !ascendingIn(idx, w.In) {
+		panic(msgScatterIdx)
+	}
+	jobs := (w.Out + gemvColsJob - 1) / gemvColsJob
+	workers := workerCount(threads, jobs, len(idx)*w.Out)
+	runJobs(jobs, workers, func() func(int) {
+		var buf [gemvColsJob]float32
+		return func(job int) {
+			j0 := job * gemvColsJob
+			j1 := min(j0+gemvColsJob, w.Out)
+			acc := y[j0:j1]
+			clear(acc)
+			for r, k := range idx {
+				axpyAcc(h[r], w.storedRange(buf[:], int(k)*w.Out+j0, j1-j0), acc)
+			}
+			if bias != nil {
+				for j := range acc {
+					acc[j] += bias[j0+j]
+				}
+			}
+		}
+	})
+}
