@@ -169,3 +169,15 @@ func TestInspectReportsNaNWeights(t *testing.T) {
 	require.Empty(t, out)
 	require.Contains(t, errs, "non-finite logits")
 }
+
+func TestDefaultsToTheEmbeddedDemo(t *testing.T) {
+	code, out, errs := sparsegate(t, "inspect")
+	require.Equal(t, 0, code, errs)
+	require.Contains(t, out, "checkpoint   (embedded demo model)")
+	require.Contains(t, out, "family       opt")
+	require.Contains(t, out, "byte-level BPE, 2048 tokens")
+	code, out, errs = sparsegate(t, "score", "--text", "../../harness/synth/testdata/sample.txt", "--window", "128", "--stride", "64")
+	require.Equal(t, 0, code, errs)
+	require.Contains(t, out, "model        (embedded demo model)")
+	require.Contains(t, out, "perplexity")
+}

@@ -30,11 +30,11 @@ func (w *World) document(r *rand.Rand, rec func(string)) string {
 		case k < 8:
 			w.routeSection(r, &b, rec)
 		case k < 10:
-			w.answered(r, &b, "sum", 1+r.IntN(3), rec)
+			w.answered(r, &b, "sum", 2+r.IntN(4), rec)
 		case k < 11:
 			w.answered(r, &b, "status", 1+r.IntN(4), rec)
 		case k < 13:
-			w.answered(r, &b, "weekday", 1+r.IntN(4), rec)
+			w.answered(r, &b, "weekday", 2+r.IntN(4), rec)
 		default:
 			b.WriteString(w.note(r))
 		}
@@ -71,7 +71,7 @@ func (w *World) lookupSection(r *rand.Rand, b *strings.Builder, rec func(string)
 	b.WriteString(ctx + ans)
 	lines := strings.Split(ctx, "\n")
 	table := lines[1 : len(lines)-1]
-	for extra := r.IntN(4); extra > 0; extra-- {
+	for extra := 1 + r.IntN(4); extra > 0; extra-- {
 		row := strings.SplitN(strings.TrimPrefix(table[r.IntN(len(table))], "- "), " = ", 2)
 		fmt.Fprintf(b, "\nCode for %s: %s", row[0], row[1])
 	}
@@ -86,7 +86,7 @@ func (w *World) routeSection(r *rand.Rand, b *strings.Builder, rec func(string))
 	b.WriteString(ctx + ans)
 	head := ctx[:strings.Index(ctx, ".\n")]
 	stops := strings.Split(head[strings.Index(head, ": ")+2:], ", ")
-	for extra := r.IntN(4); extra > 0; extra-- {
+	for extra := 1 + r.IntN(4); extra > 0; extra-- {
 		q := r.IntN(len(stops) - 1)
 		fmt.Fprintf(b, "\nAfter %s comes: %s", stops[q], stops[q+1])
 	}

@@ -41,16 +41,19 @@ const (
 )
 
 // Generate draws all splits. Held-out documents equal to a training document
-// are redrawn, and so are items whose context occurs in training, in the pool
-// or earlier among the items, so the splits share nothing.
+// are redrawn, and so are items whose context occurs in the pool or earlier
+// among the items; for the in-context families (lookup, next), whose answers
+// live in the prompt, also items whose context occurs in training. The
+// arithmetic families (sum, weekday) are small fact tables the model must
+// have learned, so their questions recur in training by design.
 func Generate(seed uint64, s Sizes) (*Data, error) {
 	w := NewWorld(seed)
 	d := &Data{Items: map[string][]Item{}, Pools: map[string][]Item{}}
 	rng := func(stream uint64) *rand.Rand { return rand.New(rand.NewPCG(seed, stream)) }
 
 	seenDoc := map[string]bool{}
-	seenCtx := map[string]bool{}
-	rec := func(c string) { seenCtx[c] = true }
+	seenCtx, trainCtx := map[string]bool{}, map[string]bool{}
+	rec := func(c string) { trainCtx[c] = true }
 	r := rng(streamTrain)
 	for len(d.Train) < s.TrainDocs {
 		doc := w.document(r, rec)
@@ -89,7 +92,7 @@ func Generate(seed uint64, s Sizes) (*Data, error) {
 					return nil, fmt.Errorf("could not draw %d distinct %s items", split.n, fam)
 				}
 				it := w.NewItem(r, fam, len(split.dst[fam]))
-				if seenCtx[it.Context] {
+				if seenCtx[it.Context] || (inContext(fam) && trainCtx[it.Context]) {
 					continue
 				}
 				seenCtx[it.Context] = true
@@ -99,6 +102,9 @@ func Generate(seed uint64, s Sizes) (*Data, error) {
 	}
 	return d, nil
 }
+
+// inContext reports families whose answer is given in the prompt itself.
+func inContext(family string) bool { return family == "lookup" || family == "next" }
 
 // Text joins documents into one text file; a blank line separates them.
 func Text(docs []string) string { return strings.Join(docs, "\n") }

@@ -133,7 +133,7 @@ func Families() []string { return []string{"lookup", "next", "sum", "status", "w
 func (w *World) question(r *rand.Rand, family string) (ctx, answer string, wrong []string) {
 	switch family {
 	case "lookup":
-		n := 3 + r.IntN(4)
+		n := 3 + r.IntN(3)
 		depots := pick(r, w.Depots, n)
 		codes := pick(r, w.Codes, n)
 		seen := map[string]bool{}
@@ -174,7 +174,7 @@ func (w *World) question(r *rand.Rand, family string) (ctx, answer string, wrong
 	case "sum":
 		a, b := 1+r.IntN(20), 1+r.IntN(20)
 		s := a + b
-		ctx = fmt.Sprintf("Parcel %s weighs %d kg and parcel %s weighs %d kg. Together they weigh", parcelID(r), a, parcelID(r), b)
+		ctx = fmt.Sprintf("At %s, a parcel of %d kg and a parcel of %d kg weigh together", w.Depots[r.IntN(len(w.Depots))], a, b)
 		seen := map[int]bool{s: true}
 		for _, d := range r.Perm(8) {
 			v := s + []int{-1, 1, -2, 2, -10, 10, -3, 3}[d]
@@ -200,7 +200,7 @@ func (w *World) question(r *rand.Rand, family string) (ctx, answer string, wrong
 		if n == 1 {
 			later = "day"
 		}
-		ctx = fmt.Sprintf("Parcel %s, sent from %s on %s, was delivered %d %s later, on", parcelID(r), w.Depots[r.IntN(len(w.Depots))], w.Weekdays[d], n, later)
+		ctx = fmt.Sprintf("Sent from %s on %s, delivered %d %s later, on", w.Depots[r.IntN(len(w.Depots))], w.Weekdays[d], n, later)
 		ans := (d + n) % 7
 		for _, j := range r.Perm(7) {
 			if j != ans && len(wrong) < 3 {

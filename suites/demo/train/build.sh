@@ -3,7 +3,7 @@
 # tokenizer (Go), training (PyTorch, offline), export into suites/demo/model,
 # then the quality measurements the model card reports.
 #
-#   bash suites/demo/train/build.sh          # about 40 minutes on 2 cores
+#   bash suites/demo/train/build.sh          # about 40 minutes on 2 cores (training: 36)
 #
 # Needs python3-torch, python3-numpy and, for speed, libopenblas0-pthread
 # (Debian packages). Same seed, torch build and thread count: same weights.
@@ -16,8 +16,8 @@ go run ./suites/demo/mkdata --seed 1 --vocab 2048 --out "$work"
 
 LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread /usr/bin/python3 suites/demo/train/train.py \
   --train "$work/train.u16" --valid "$work/valid.u16" --vocab 2048 --out "$work/model" \
-  --layers 4 --hidden 128 --heads 4 --ffn 512 --seq 256 --batch 12 --steps 2200 \
-  --lr 2.5e-3 --warmup 150 --act-l1 0.05 --embed-std 0.2 --eval-every 200 --eval-windows 32 \
+  --layers 4 --hidden 128 --heads 4 --ffn 512 --seq 256 --batch 12 --steps 3000 \
+  --lr 2.5e-3 --warmup 150 --act-l1 0.05 --embed-std 0.35 --eval-every 250 --eval-windows 32 \
   --seed 1 --threads 2 --log "$work/train.log"
 
 for f in config.json model.safetensors tokenizer.json tokenizer_config.json train_log.json; do
