@@ -52,19 +52,7 @@ func LinearGather(y, x []float32, w *Mat, bias []float32, idx []int32) {
 // MLP down-projections and attention output projections with heads skipped.
 // It runs in the calling goroutine.
 func LinearScatterIn(y, h []float32, w *Mat, bias []float32, idx []int32) {
-	w.Check()
-	if len(h) != len(idx) {
-		panic(msgScatterH)
-	}
-	if len(y) != w.Out {
-		panic(msgScatterY)
-	}
-	if bias != nil && len(bias) != w.Out {
-		panic(msgScatterBias)
-	}
-	if !ascendingIn(idx, w.In) {
-		panic(msgScatterIdx)
-	}
+	checkScatter(y, h, w, bias, idx)
 	if !w.Transposed {
 		// Out×In: output j gathers W[j][idx[r]] along its row.
 		for j := range y {
@@ -83,16 +71,39 @@ func LinearScatterIn(y, h []float32, w *Mat, bias []float32, idx []int32) {
 	// Stored In×Out: input idx[r] selects a contiguous storage row.
 	var buf [gemvColsJob]float32
 	for j0 := 0; j0 < w.Out; j0 += gemvColsJob {
-		j1 := min(j0+gemvColsJob, w.Out)
-		acc := y[j0:j1]
-		clear(acc)
-		for r, k := range idx {
-			axpyAcc(h[r], w.storedRange(buf[:], int(k)*w.Out+j0, j1-j0), acc)
-		}
-		if bias != nil {
-			for j := range acc {
-				acc[j] += bias[j0+j]
-			}
+		scatterBlock(y, h, w, bias, idx, j0, min(j0+gemvColsJob, w.Out), buf[:])
+	}
+}
+
+// checkScatter panics on LinearScatterIn arguments that break its contract.
+func checkScatter(y, h []float32, w *Mat, bias []float32, idx []int32) {
+	w.Check()
+	if len(h) != len(idx) {
+		panic(msgScatterH)
+	}
+	if len(y) != w.Out {
+		panic(msgScatterY)
+	}
+	if bias != nil && len(bias) != w.Out {
+		panic(msgScatterBias)
+	}
+	if !ascendingIn(idx, w.In) {
+		panic(msgScatterIdx)
+	}
+}
+
+// scatterBlock computes outputs [j0, j1) of LinearScatterIn for the
+// Transposed layout: each kept input is a contiguous storage row, added in
+// ascending order, the bias last. buf is scratch of at least j1-j0.
+func scatterBlock(y, h []float32, w *Mat, bias []float32, idx []int32, j0, j1 int, buf []float32) {
+	acc := y[j0:j1]
+	clear(acc)
+	for r, k := range idx {
+		axpyAcc(h[r], w.storedRange(buf, int(k)*w.Out+j0, j1-j0), acc)
+	}
+	if bias != nil {
+		for j := range acc {
+			acc[j] += bias[j0+j]
 		}
 	}
 }

@@ -29,40 +29,18 @@ func LinearGatherParallel(y, x []float32, w *Mat, bias []float32, idx []int32, t
 // to threads goroutines; the result is the same bits. It pays off for the
 // Transposed (input-major) layout, where each kept input is a contiguous row.
 func LinearScatterInParallel(y, h []float32, w *Mat, bias []float32, idx []int32, threads int) {
-	w.Check()
 	if !w.Transposed {
 		LinearScatterIn(y, h, w, bias, idx)
 		return
 	}
-	if len(h) != len(idx) {
-		panic(msgScatterH)
-	}
-	if len(y) != w.Out {
-		panic(msgScatterY)
-	}
-	if bias != nil && len(bias) != w.Out {
-		panic(msgScatterBias)
-	}
-	if !ascendingIn(idx, w.In) {
-		panic(msgScatterIdx)
-	}
+	checkScatter(y, h, w, bias, idx)
 	jobs := (w.Out + gemvColsJob - 1) / gemvColsJob
 	workers := workerCount(threads, jobs, len(idx)*w.Out)
 	runJobs(jobs, workers, func() func(int) {
 		var buf [gemvColsJob]float32
 		return func(job int) {
 			j0 := job * gemvColsJob
-			j1 := min(j0+gemvColsJob, w.Out)
-			acc := y[j0:j1]
-			clear(acc)
-			for r, k := range idx {
-				axpyAcc(h[r], w.storedRange(buf[:], int(k)*w.Out+j0, j1-j0), acc)
-			}
-			if bias != nil {
-				for j := range acc {
-					acc[j] += bias[j0+j]
-				}
-			}
+			scatterBlock(y, h, w, bias, idx, j0, min(j0+gemvColsJob, w.Out), buf[:])
 		}
 	})
 }
