@@ -11,6 +11,10 @@ import (
 // demoName is how output names the embedded demo model.
 const demoName = "(embedded demo model)"
 
+// demoWindow is the window the demo model was trained on: its positions
+// beyond it were never trained, so scores there mean nothing.
+const demoWindow = 256
+
 // extractDemo writes the embedded demo files into a temporary directory and
 // returns it with its clean-up. Commands load the model from there through
 // the ordinary checkpoint path.

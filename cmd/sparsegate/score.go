@@ -22,7 +22,8 @@ flags:
   --model DIR    checkpoint directory (default: the embedded demo model)
   --text FILE    text file to score (default with the demo model: its
                  in-domain held-out split)
-  --window N     tokens per forward pass (default: the model's positions, at most 1024)
+  --window N     tokens per forward pass (default: the model's positions, at most
+                 1024; 256 for the demo model, the window it was trained on)
   --stride N     step between windows (default: half the window)
   --threads N    kernel threads (default: all CPUs; results do not depend on it)
 
@@ -57,6 +58,9 @@ func runScore(c *cli, args []string) error {
 		}
 		defer cleanup()
 		modelDir, modelName = demoModelDir(root), demoName
+		if *window == 0 {
+			*window = demoWindow // the demo model never saw positions beyond it
+		}
 		if textPath == "" {
 			textPath, textName = filepath.Join(root, "data", "heldout.txt"), "(demo held-out split)"
 		}
