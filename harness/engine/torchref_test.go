@@ -13,6 +13,7 @@ import (
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/synth"
+	"sparsegate/harness/torchref"
 )
 
 // The numerical reference is PyTorch (Debian package python3-torch, 1.13.1 on
@@ -20,20 +21,9 @@ import (
 // pass in torch.nn.functional ops that reads the same checkpoint files.
 // SPARSEGATE_REQUIRE_REFERENCE=1 (set by .ci/run) turns a missing torch into
 // a failure, so the check cannot silently vanish in CI.
-const systemPython = "/usr/bin/python3"
+const systemPython = torchref.Python
 
-func requireTorch(t *testing.T) {
-	t.Helper()
-	err := exec.Command(systemPython, "-c", "import torch, numpy").Run()
-	if err == nil {
-		return
-	}
-	msg := fmt.Sprintf("PyTorch reference unavailable (%s -c 'import torch': %v); install it with: apt-get install python3-torch python3-numpy", systemPython, err)
-	if os.Getenv("SPARSEGATE_REQUIRE_REFERENCE") == "1" {
-		t.Fatal(msg)
-	}
-	t.Skip(msg)
-}
+func requireTorch(t *testing.T) { torchref.Require(t) }
 
 type torchIn struct {
 	Sequences [][]int    `json:"sequences"`

@@ -13,6 +13,7 @@ import (
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/engine"
+	"sparsegate/harness/torchref"
 )
 
 // Masked execution checked against the outside reference: the engine running
@@ -22,14 +23,8 @@ import (
 // and heads' weights zeroed (written by Prune). Tolerance as for the engine:
 // max |Δ| ≤ 1e-4 · max|logit|.
 func TestMaskedMatchesPyTorchOnZeroedWeights(t *testing.T) {
-	const python = "/usr/bin/python3"
-	if err := exec.Command(python, "-c", "import torch, numpy").Run(); err != nil {
-		msg := "PyTorch reference unavailable; apt-get install python3-torch python3-numpy"
-		if os.Getenv("SPARSEGATE_REQUIRE_REFERENCE") == "1" {
-			t.Fatal(msg)
-		}
-		t.Skip(msg)
-	}
+	const python = torchref.Python
+	torchref.Require(t)
 	for _, f := range []checkpoint.Family{checkpoint.OPT, checkpoint.GPT2, checkpoint.Llama} {
 		t.Run(string(f), func(t *testing.T) {
 			fx := newFixture(t, f, nil)

@@ -11,6 +11,7 @@ import (
 	"github.com/stretchr/testify/require"
 
 	"sparsegate/harness/engine"
+	"sparsegate/harness/torchref"
 )
 
 // The engine's logits on the demo model match the PyTorch reference
@@ -18,13 +19,8 @@ import (
 // an independent forward pass) within the engine's tolerance: max |Δ| ≤ 1e-4 ·
 // max|logit|. SPARSEGATE_REQUIRE_REFERENCE=1 turns a missing torch into a failure.
 func TestMatchesPyTorchReference(t *testing.T) {
-	const python = "/usr/bin/python3"
-	if err := exec.Command(python, "-c", "import torch, numpy").Run(); err != nil {
-		if os.Getenv("SPARSEGATE_REQUIRE_REFERENCE") == "1" {
-			t.Fatalf("PyTorch reference unavailable: %v; apt-get install python3-torch python3-numpy", err)
-		}
-		t.Skip("PyTorch reference unavailable; apt-get install python3-torch python3-numpy")
-	}
+	const python = torchref.Python
+	torchref.Require(t)
 	m := loadDemo(t)
 	text, err := os.ReadFile(filepath.Join("data", "heldout.txt"))
 	require.NoError(t, err)
