@@ -52,6 +52,7 @@ func failError(err error) error { return &exitError{code: exitFail, err: err} }
 func commands() []command {
 	return []command{
 		{"inspect", "describe a checkpoint: family, sizes, dtypes, shapes, tokenizer, weights hash", inspectUsage, runInspect},
+		{"run", "run a suite on a base and/or a candidate build and summarise each probe", runUsage, runRun},
 		{"score", "score a text file with a checkpoint: tokens, mean NLL, perplexity, bits per byte", scoreUsage, runScore},
 		{"sparsify", "make a sparse build from a dense checkpoint: calibrate per-layer predictors", sparsifyUsage, runSparsify},
 		{"synth", "write a random-weight checkpoint of a family (for smoke tests and benchmarks)", synthUsage, runSynth},

@@ -192,13 +192,23 @@ func (h *hook) record(s *selector, dense func() []float32, kept []int32) {
 	if !h.recall || n == 0 {
 		return
 	}
-	hits := n
+	hits, of := n, n
 	if kept != nil {
-		oracle := topKInto(h.oracle, h.order, absInto(h.mag[:s.width], dense()), n)
-		hits = intersectCount(kept, oracle)
+		// The oracle is the top n by magnitude, less its exact zeros: a unit
+		// that contributes nothing is not one the kept set should have had
+		// (with ReLU most are zero, and ties among zeros are arbitrary).
+		mag := absInto(h.mag[:s.width], dense())
+		oracle := topKInto(h.oracle, h.order, mag, n)
+		nz := oracle[:0]
+		for _, i := range oracle {
+			if mag[i] > 0 {
+				nz = append(nz, i)
+			}
+		}
+		hits, of = intersectCount(kept, nz), len(nz)
 	}
 	s.st.RecallHits += int64(hits)
-	s.st.RecallOf += int64(n)
+	s.st.RecallOf += int64(of)
 }
 
 // absInto writes |src| into dst and returns dst.

@@ -25,7 +25,8 @@ type UnitStats struct {
 	Width int
 	// RecallHits sums |kept ∩ oracle| over the tokens where recall was measured.
 	RecallHits int64
-	// RecallOf sums |oracle| (= |kept|) over the same tokens.
+	// RecallOf sums |oracle| over the same tokens, where the oracle is the
+	// top |kept| by magnitude less its exact zeros.
 	RecallOf int64
 }
 

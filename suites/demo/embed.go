@@ -14,6 +14,7 @@ import (
 // files holds the demo model and data inside the binary, so the demo runs from
 // any directory. It is read-only.
 //
+//go:embed suite.yaml
 //go:embed model/config.json model/model.safetensors model/tokenizer.json model/tokenizer_config.json model/MODEL_CARD.md
 //go:embed data/heldout.txt data/weather.txt data/items/*.jsonl data/pools/*.jsonl
 var files embed.FS

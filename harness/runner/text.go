@@ -1,0 +1,193 @@
+package runner
+
+import (
+	"fmt"
+	"math"
+
+	"sparsegate/harness/engine"
+	"sparsegate/harness/kernels"
+	"sparsegate/harness/results"
+	"sparsegate/harness/sparsity"
+)
+
+func windowID(i int) string { return fmt.Sprintf("w%04d", i) }
+
+// targetBytes returns the text bytes a target token stands for (0 for
+// special tokens), so bits per byte counts text only.
+func targetBytes(m *engine.Model, id int) int {
+	tok := m.Tokenizer
+	for _, f := range []func() (int, bool){tok.BOS, tok.EOS, tok.PAD} {
+		if s, ok := f(); ok && s == id {
+			return 0
+		}
+	}
+	return len(tok.TokenBytes(id))
+}
+
+func (rc *runCtx) perplexity(pp *prepared, pr *results.Probe) error {
+	if cached, ok := rc.cached(pp, pr); ok {
+		pr.Items = cached.Items
+		return nil
+	}
+	t := rc.subject
+	m, hook := t.Model, t.hook(nil, false)
+	prog := rc.progress(pp.probe.Name)
+	for wi, w := range pp.windows {
+		id := windowID(wi)
+		if !inShard(rc.opts.Shard, pp.probe.Name, id) {
+			continue
+		}
+		lp, err := m.LogProbs(pp.tokens[w.start:w.end], hook)
+		if err != nil {
+			return fmt.Errorf("window %s (tokens %d–%d): %w", id, w.start, w.end, err)
+		}
+		nll, nbytes := 0.0, 0
+		for tgt := w.first; tgt < w.end; tgt++ {
+			nll -= lp[tgt-w.start-1]
+			nbytes += targetBytes(m, pp.tokens[tgt])
+		}
+		n := w.end - w.first
+		pr.Items = append(pr.Items, results.Item{ID: id, Index: wi, NLL: &nll, Tokens: &n, Bytes: &nbytes})
+		prog(wi+1, len(pp.windows))
+	}
+	rc.store(pp, pr)
+	return nil
+}
+
+// rowLogits runs seq[:len-1] and returns the logits of every row.
+func rowLogits(m *engine.Model, hook engine.Hook, seq []int) ([]float32, error) {
+	s := m.NewSession()
+	hidden, err := m.Forward([]*engine.Session{s}, [][]int{seq[:len(seq)-1]}, hook)
+	if err != nil {
+		return nil, err
+	}
+	rows := len(seq) - 1
+	logits := make([]float32, rows*m.Config.VocabSize)
+	m.Logits(logits, hidden, rows)
+	return logits, nil
+}
+
+// logSoftmax writes ln softmax(x) into dst in float64.
+func logSoftmax(dst []float64, x []float32) error {
+	lse := kernels.LogSumExp(x)
+	if math.IsNaN(lse) || math.IsInf(lse, 0) {
+		return fmt.Errorf("%w (log-sum-exp %v): the weights or the activations hold NaN or Inf", engine.ErrNonFinite, lse)
+	}
+	for i, v := range x {
+		dst[i] = float64(v) - lse
+	}
+	return nil
+}
+
+// KL returns KL(p ‖ q) = Σ p_i (ln p_i − ln q_i) for log-probabilities lp
+// and lq, summed in index order; terms with p_i = 0 contribute 0.
+func KL(lp, lq []float64) float64 {
+	s := 0.0
+	for i, a := range lp {
+		p := math.Exp(a)
+		if p == 0 {
+			continue
+		}
+		s += p * (a - lq[i])
+	}
+	return s
+}
+
+func (rc *runCtx) drift(pp *prepared, pr *results.Probe) error {
+	b, c := rc.base, rc.cand
+	bh, ch := b.hook(nil, false), c.hook(nil, false)
+	V := b.Model.Config.VocabSize
+	lb, lc := make([]float64, V), make([]float64, V)
+	prog := rc.progress(pp.probe.Name)
+	for wi, w := range pp.windows {
+		id := windowID(wi)
+		if !inShard(rc.opts.Shard, pp.probe.Name, id) {
+			continue
+		}
+		seq := pp.tokens[w.start:w.end]
+		xb, err := rowLogits(b.Model, bh, seq)
+		if err != nil {
+			return fmt.Errorf("window %s, base: %w", id, err)
+		}
+		xc, err := rowLogits(c.Model, ch, seq)
+		if err != nil {
+			return fmt.Errorf("window %s, candidate: %w", id, err)
+		}
+		it := results.Item{ID: id, Index: wi, KL: []float64{}}
+		agree := 0
+		for tgt := w.first; tgt < w.end; tgt++ {
+			row := tgt - w.start - 1
+			rb, rcand := xb[row*V:(row+1)*V], xc[row*V:(row+1)*V]
+			if err := logSoftmax(lb, rb); err != nil {
+				return fmt.Errorf("window %s, base, token %d: %w", id, tgt, err)
+			}
+			if err := logSoftmax(lc, rcand); err != nil {
+				return fmt.Errorf("window %s, candidate, token %d: %w", id, tgt, err)
+			}
+			it.KL = append(it.KL, max(0, KL(lb, lc)))
+			if kernels.Argmax(rb) == kernels.Argmax(rcand) {
+				agree++
+			}
+		}
+		it.Agree = &agree
+		pr.Items = append(pr.Items, it)
+		prog(wi+1, len(pp.windows))
+	}
+	return nil
+}
+
+func (rc *runCtx) sparsity(pp *prepared, pr *results.Probe) error {
+	c := rc.cand
+	stats := sparsity.NewStats()
+	hook := c.hook(stats, true)
+	prog := rc.progress(pp.probe.Name)
+	for wi, w := range pp.windows {
+		s := c.Model.NewSession()
+		if _, err := c.Model.Forward([]*engine.Session{s}, [][]int{pp.tokens[w.start : w.end-1]}, hook); err != nil {
+			return fmt.Errorf("window %s: %w", windowID(wi), err)
+		}
+		prog(wi+1, len(pp.windows))
+	}
+	var sums [2]float64
+	var counts [2]int
+	var rsum [2]float64
+	var rcount [2]int
+	var all []sparsity.Unit
+	for l := range c.Model.Config.Layers {
+		for _, comp := range sparsity.Components() {
+			all = append(all, sparsity.Unit{Layer: l, Component: comp})
+		}
+	}
+	for _, u := range all {
+		ci := 0
+		if u.Component == sparsity.Attention {
+			ci = 1
+		}
+		kept := 1.0
+		if _, ok := stats.Unit(u); ok {
+			kept = stats.KeptFraction(u)
+		}
+		ru := results.Unit{Layer: u.Layer, Component: string(u.Component), Rule: c.Build.Rule(u).String(), Kept: kept}
+		if c.Dense[u] {
+			ru.Rule = "dense (forced)"
+		}
+		if rec, ok := stats.Recall(u); ok && c.Build.Rule(u).Mode != sparsity.Dense && !c.Dense[u] {
+			ru.Recall = &rec
+			rsum[ci] += rec
+			rcount[ci]++
+		}
+		sums[ci] += kept
+		counts[ci]++
+		pr.Units = append(pr.Units, ru)
+	}
+	names := [2]string{"mlp", "attention"}
+	for ci := range 2 {
+		if counts[ci] > 0 {
+			pr.Metrics = append(pr.Metrics, results.Metric{Name: "kept_" + names[ci], Value: sums[ci] / float64(counts[ci])})
+		}
+		if rcount[ci] > 0 {
+			pr.Metrics = append(pr.Metrics, results.Metric{Name: "recall_" + names[ci], Value: rsum[ci] / float64(rcount[ci])})
+		}
+	}
+	return nil
+}

@@ -1,0 +1,17 @@
+package suites
+
+import "unicode/utf8"
+
+func utf8Valid(b []byte) bool { return utf8.Valid(b) }
+
+// invalidAt returns the offset of the first byte that is not valid UTF-8.
+func invalidAt(b []byte) int {
+	for i := 0; i < len(b); {
+		r, n := utf8.DecodeRune(b[i:])
+		if r == utf8.RuneError && n <= 1 {
+			return i
+		}
+		i += n
+	}
+	return -1
+}
