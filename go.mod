@@ -11,4 +11,4 @@ require (
 	golang.org/x/sys v0.50.0
 )
 
-require github.com/joshdk/go-junit v1.0.0 // indirect
+require github.com/joshdk/go-junit v1.0.0
