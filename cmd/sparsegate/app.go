@@ -53,6 +53,10 @@ func commands() []command {
 	return []command{
 		{"inspect", "describe a checkpoint: family, sizes, dtypes, shapes, tokenizer, weights hash", inspectUsage, runInspect},
 		{"run", "run a suite on a base and/or a candidate build and summarise each probe", runUsage, runRun},
+		{"compare", "gate saved results against golden files without running a model", compareUsage, runCompare},
+		{"golden", "update, diff or verify golden files (audited, atomic)", goldenUsage, runGolden},
+		{"merge", "merge the results of every shard of a run", mergeUsage, runMerge},
+		{"report", "re-render a saved verdict as JUnit, diff, JSON, Markdown or HTML", reportUsage, runReport},
 		{"score", "score a text file with a checkpoint: tokens, mean NLL, perplexity, bits per byte", scoreUsage, runScore},
 		{"sparsify", "make a sparse build from a dense checkpoint: calibrate per-layer predictors", sparsifyUsage, runSparsify},
 		{"synth", "write a random-weight checkpoint of a family (for smoke tests and benchmarks)", synthUsage, runSynth},

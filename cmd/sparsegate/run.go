@@ -9,6 +9,7 @@ import (
 	"strconv"
 	"strings"
 
+	"sparsegate/golden"
 	"sparsegate/harness/engine"
 	"sparsegate/harness/progress"
 	"sparsegate/harness/results"
@@ -30,14 +31,19 @@ flags:
   --base DIR         dense base checkpoint (default: the candidate's base; for
                      the demo suite, the embedded demo model)
   --results FILE     write the Results JSON here
+  --golden DIR       compare with the golden files in DIR and gate: exit 1
+                     when a probe fails (the diff is printed)
+  --allow-new        let probes without golden files (new) and golden files
+                     without results (missing) pass
   --probe NAME       run only this probe (repeatable)
   --shard I/N        run only shard I of N (items split by a stable hash)
   --cache DIR        cache of base results (default: the user cache directory)
   --no-cache         do not read or write the cache
   --threads N        kernel threads (default: all CPUs; results do not depend on it)
-
+`+reportFlagsHelp+`
 examples:
   sparsegate run --suite demo
+  sparsegate run --suite gate.yaml --candidate ./builds/rc7 --golden golden/gate --junit junit.xml
   sparsegate run --suite gate.yaml --candidate ./builds/rc7 --base ./models/dense --results rc7.json
 `
 
@@ -189,11 +195,18 @@ func runRun(c *cli, args []string) error {
 	var f runFlags
 	f.bind(fs)
 	resultsPath := fs.String("results", "", "results JSON")
+	goldenDir := fs.String("golden", "", "golden directory")
+	allowNew := fs.Bool("allow-new", false, "allow new and missing")
+	var rf reportFlags
+	rf.bind(fs)
 	if err := parse(fs, args); err != nil {
 		return err
 	}
 	if fs.NArg() > 0 {
 		return usageError("run", "unexpected arguments %q", fs.Args())
+	}
+	if rf.any() && *goldenDir == "" {
+		return usageError("run", "reports (--junit, --diff, --json, --markdown, --html) need --golden DIR to compare with")
 	}
 	s, err := f.open(c, "run")
 	if err != nil {
@@ -211,6 +224,13 @@ func runRun(c *cli, args []string) error {
 	}
 	if err := writeSummary(c.stdout, r); err != nil {
 		return err
+	}
+	if *goldenDir != "" {
+		v, err := golden.Compare(s.suite, r, *goldenDir, golden.Options{AllowNew: *allowNew})
+		if err != nil {
+			return err
+		}
+		return gateOutcome(c, v, &rf)
 	}
 	return probeErrors(r)
 }

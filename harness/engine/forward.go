@@ -194,11 +194,13 @@ func (m *Model) attention(st *state, li int) {
 	for r := 0; r < R; r++ {
 		m.norm(st.h[r*d:(r+1)*d], st.x[r*d:(r+1)*d], L.attnNormW, L.attnNormB)
 	}
-	if st.hook != nil {
+	if st.hook != nil && R == 1 {
 		m.attentionHooked(st, li)
 		return
 	}
-	// The dense path: batched projections for every head.
+	// Batched projections for every head (with a hook, dropped heads are
+	// zeroed afterwards: batched products cost far less per multiply than
+	// row-at-a-time ones, and give the same bits).
 	if L.qkv != nil {
 		fused := make([]float32, R*3*d)
 		kernels.Linear(fused, st.h, R, L.qkv, L.qkvB, m.threads)
@@ -219,7 +221,13 @@ func (m *Model) attention(st *state, li int) {
 			kernels.Rope(st.k[r*kvd:(r+1)*kvd], hd, st.rows[r].pos, m.rope)
 			kernels.Rope(st.q[r*qd:(r+1)*qd], hd, st.rows[r].pos, m.rope)
 		}
-		st.sessions[st.rows[r].seq].appendKV(li, st.k[r*kvd:(r+1)*kvd], st.v[r*kvd:(r+1)*kvd], nil)
+		if st.hook == nil {
+			st.sessions[st.rows[r].seq].appendKV(li, st.k[r*kvd:(r+1)*kvd], st.v[r*kvd:(r+1)*kvd], nil)
+		}
+	}
+	if st.hook != nil {
+		m.attentionHookedBatch(st, li)
+		return
 	}
 	parallelRows(R, m.threads, func(r0, r1 int) {
 		var scores []float32
@@ -231,6 +239,66 @@ func (m *Model) attention(st *state, li int) {
 		}
 	})
 	out := st.h // the normed input is no longer needed
+	kernels.Linear(out, st.a, R, L.o, L.oB, m.threads)
+	kernels.Add(st.x, st.x, out)
+}
+
+// attentionHookedBatch finishes hooked attention for a batch whose queries,
+// keys and values were projected for every head: row by row, in order, the
+// hook picks the heads (its oracle sees the cache as the row-by-row path
+// would), the row's keys and values join the cache with the unused key/value
+// heads absent, then the kept heads attend (in parallel over rows) and the
+// dropped heads' outputs stay zero through the batched output projection.
+// The bits equal attentionHooked's.
+func (m *Model) attentionHookedBatch(st *state, li int) {
+	c, L := m.Config, &m.layers[li]
+	R, hd := len(st.rows), c.HeadDim
+	qd, kvd := c.Heads*hd, c.KVHeads*hd
+	group := c.Heads / c.KVHeads
+	kept := make([][]int32, R)
+	for r := 0; r < R; r++ {
+		s := st.sessions[st.rows[r].seq]
+		q, k, v := st.q[r*qd:(r+1)*qd], st.k[r*kvd:(r+1)*kvd], st.v[r*kvd:(r+1)*kvd]
+		tok := m.token(st, li, r)
+		tok.dense = func() []float32 { return m.headNorms(st, li, r, q, k, v) }
+		heads := st.hook.Heads(tok)
+		if heads == nil {
+			s.appendKV(li, k, v, nil)
+			continue
+		}
+		kept[r] = append(make([]int32, 0, len(heads)), heads...)
+		present := make([]bool, c.KVHeads)
+		for _, hh := range heads {
+			present[hh/int32(group)] = true
+		}
+		fk, fv := make([]float32, kvd), make([]float32, kvd)
+		for g, ok := range present {
+			if ok {
+				copy(fk[g*hd:(g+1)*hd], k[g*hd:(g+1)*hd])
+				copy(fv[g*hd:(g+1)*hd], v[g*hd:(g+1)*hd])
+			}
+		}
+		s.appendKV(li, fk, fv, present)
+	}
+	parallelRows(R, m.threads, func(r0, r1 int) {
+		var scores []float32
+		for r := r0; r < r1; r++ {
+			a := st.a[r*qd : (r+1)*qd]
+			s := st.sessions[st.rows[r].seq]
+			if kept[r] == nil {
+				for h := 0; h < c.Heads; h++ {
+					scores = m.attendHead(a[h*hd:(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd], s, li, h, st.rows[r].pos+1, scores)
+				}
+				continue
+			}
+			clear(a)
+			for _, hh := range kept[r] {
+				h := int(hh)
+				scores = m.attendHead(a[h*hd:(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd], s, li, h, st.rows[r].pos+1, scores)
+			}
+		}
+	})
+	out := st.h
 	kernels.Linear(out, st.a, R, L.o, L.oB, m.threads)
 	kernels.Add(st.x, st.x, out)
 }
@@ -406,6 +474,15 @@ func (m *Model) denseHeadNorms(st *state, li, r int) []float32 {
 		kernels.Rope(q, hd, pos, m.rope)
 		kernels.Rope(k, hd, pos, m.rope)
 	}
+	return m.headNorms(st, li, r, q, k, v)
+}
+
+// headNorms is denseHeadNorms with the row's queries, keys and values (all
+// heads, positions applied) already computed.
+func (m *Model) headNorms(st *state, li, r int, q, k, v []float32) []float32 {
+	c := m.Config
+	hd := c.HeadDim
+	pos := st.rows[r].pos
 	s := st.sessions[st.rows[r].seq]
 	side := &Session{m: m, n: s.n, k: s.k, v: s.v, present: s.present}
 	side.k = append([][]float32(nil), s.k...)

@@ -50,7 +50,8 @@ func decodeLogProbs(t *testing.T, m *Model, toks []int, hook Hook) []float64 {
 }
 
 // A batch whose rows keep most neurons runs the MLP as dense products with
-// the dropped neurons zeroed; one token at a time it runs gathers. Both must
+// the dropped neurons zeroed, and a batch's attention projects every head and
+// zeroes the dropped ones; one token at a time both run gathers. Both must
 // give the same bits, with masks that change from token to token.
 func TestBatchedAndGatheredSparsePathsAgree(t *testing.T) {
 	for _, f := range families {
