@@ -327,13 +327,18 @@ func compareMetric(p *suites.Probe, t *suites.Tolerance, gp, rp *results.Probe, 
 		}
 	}
 	significant := false
+	var notes []string
 	switch t.Test {
 	case suites.TestMcNemar:
 		mn := stats.McNemarTest(mv.Lost, mv.Gained)
 		st, pv := mn.Statistic, mn.ExactP
 		mv.Test, mv.Statistic, mv.P = "mcnemar-exact", &st, &pv
 		significant = pv < t.Alpha && mv.Lost > mv.Gained
-		if n > 0 {
+		if n > 0 && t.Power < 0.5 {
+			// Connor's formula is not monotone below power 0.5, so
+			// MinDetectable refuses it (it panics); say so instead.
+			mv.PowerWarning = fmt.Sprintf("power %s is below 0.5, so no power check was made: set power to 0.5 or more (0.8 is usual)", ff(t.Power))
+		} else if n > 0 {
 			psi := max(float64(mv.Lost+mv.Gained)/float64(n), mv.Bound)
 			md, ok := stats.MinDetectable(n, min(psi, 1), t.Alpha, t.Power)
 			if !ok || md > mv.Bound {
@@ -358,7 +363,7 @@ func compareMetric(p *suites.Probe, t *suites.Tolerance, gp, rp *results.Probe, 
 					countPaired(pairs), 100*(1-t.Alpha), (hi-lo)/2, mv.Bound)
 			}
 		} else {
-			mv.Note = "no paired windows for the bootstrap (the golden file and the run share no window ids)"
+			notes = append(notes, "no paired windows for the bootstrap (the golden file and the run share no window ids)")
 		}
 	}
 	var fail bool
@@ -372,7 +377,6 @@ func compareMetric(p *suites.Probe, t *suites.Tolerance, gp, rp *results.Probe, 
 	case suites.FailIfEither:
 		fail = large || significant
 	}
-	var notes []string
 	if large {
 		notes = append(notes, fmt.Sprintf("worse by %.4g, beyond the bound %.4g", worse, mv.Bound))
 	}

@@ -12,6 +12,7 @@ import (
 	"strings"
 
 	"sparsegate/harness/results"
+	"sparsegate/suites"
 )
 
 // FileVersion is the golden file format version this package reads and writes.
@@ -48,9 +49,12 @@ const Ext = ".golden"
 //	item "w0001" index=1 agree=120 kl=0.001,0.0004
 //	unit 0 mlp kept=0.3 recall=0.99 rule="predictor k=154"
 //
-// Records come in that order: header, probe, kind, fingerprints (fixed
-// order), metrics (by name), items (by index), units (by layer, then
-// component). Unknown records or fields are errors naming the file and line.
+// Records come in that order: header, probe, kind, fingerprints (written in
+// fixed order), metrics (sorted by name), items (in the results' order, item
+// index order for a run), units (in the results' order). Parse enforces the
+// record order and the metric order; unknown records or fields, unknown
+// kinds, duplicate metrics, fingerprints or item ids are errors naming the
+// file and line. FORMAT.md beside this package describes every field.
 type File struct {
 	// Probe and Kind name the probe.
 	Probe, Kind string
@@ -111,6 +115,9 @@ func (f *File) Encode() ([]byte, error) {
 		b.WriteByte('\n')
 	}
 	for _, it := range f.Items {
+		if err := finiteItem(&it); err != nil {
+			return nil, fmt.Errorf("probe %q: item %q: %v; a golden value must be finite", f.Probe, it.ID, err)
+		}
 		fmt.Fprintf(&b, "item %s index=%d", strconv.Quote(it.ID), it.Index)
 		if it.Chosen != nil {
 			fmt.Fprintf(&b, " chosen=%d", *it.Chosen)
@@ -152,6 +159,9 @@ func (f *File) Encode() ([]byte, error) {
 		b.WriteByte('\n')
 	}
 	for _, u := range f.Units {
+		if !finite(u.Kept) || (u.Recall != nil && !finite(*u.Recall)) {
+			return nil, fmt.Errorf("probe %q: unit %d %s has a non-finite kept fraction or recall; a golden value must be finite", f.Probe, u.Layer, u.Component)
+		}
 		fmt.Fprintf(&b, "unit %d %s kept=%s", u.Layer, u.Component, ff(u.Kept))
 		if u.Recall != nil {
 			fmt.Fprintf(&b, " recall=%s", ff(*u.Recall))
@@ -159,6 +169,24 @@ func (f *File) Encode() ([]byte, error) {
 		fmt.Fprintf(&b, " rule=%s\n", strconv.Quote(u.Rule))
 	}
 	return b.Bytes(), nil
+}
+
+func finite(v float64) bool { return !math.IsNaN(v) && !math.IsInf(v, 0) }
+
+// finiteItem reports the first non-finite float of an item.
+func finiteItem(it *results.Item) error {
+	switch {
+	case it.Margin != nil && !finite(*it.Margin):
+		return fmt.Errorf("margin is %v", *it.Margin)
+	case it.NLL != nil && !finite(*it.NLL):
+		return fmt.Errorf("nll is %v", *it.NLL)
+	}
+	for i, v := range it.KL {
+		if !finite(v) {
+			return fmt.Errorf("kl[%d] is %v", i, v)
+		}
+	}
+	return nil
 }
 
 // MaxFileBytes caps a golden file (a probe's per-item records).
@@ -193,6 +221,11 @@ func Parse(file string, data []byte) (*File, error) {
 		return fmt.Errorf("%s:%d: %s; the golden file is damaged or hand-edited: restore it from version control or re-record it with 'sparsegate golden update'", file, line, fmt.Sprintf(format, args...))
 	}
 	stage := 0 // 0 header, 1 probe, 2 kind, 3 body
+	// Body records come in this order; section is the rank of the last one.
+	order := map[string]int{"fingerprint": 1, "metric": 2, "item": 3, "unit": 4}
+	section := 0
+	seenFP := map[string]bool{}
+	itemLine := map[string]int{}
 	for sc.Scan() {
 		line++
 		text := sc.Text()
@@ -226,8 +259,19 @@ func Parse(file string, data []byte) (*File, error) {
 			if key != "kind" || rest == "" {
 				return nil, fail("expected the kind line, got %.40q", text)
 			}
+			if !slices.Contains(suites.Kinds(), rest) {
+				return nil, fail("unknown probe kind %.40q (kinds are %s)", rest, strings.Join(suites.Kinds(), ", "))
+			}
 			f.Kind, stage = rest, 3
+		case order[key] != 0 && order[key] < section:
+			return nil, fail("a %s record after the %s records; records come in the order fingerprint, metric, item, unit", key, []string{"", "fingerprint", "metric", "item", "unit"}[section])
 		case key == "fingerprint":
+			section = 1
+			name, _, _ := strings.Cut(rest, " ")
+			if seenFP[name] {
+				return nil, fail("fingerprint %.40s is listed twice", name)
+			}
+			seenFP[name] = true
 			if err := f.parseFingerprint(rest); err != nil {
 				return nil, fail("%v", err)
 			}
@@ -236,17 +280,27 @@ func Parse(file string, data []byte) (*File, error) {
 			if err != nil {
 				return nil, fail("%v", err)
 			}
+			section = 2
 			if f.Metric(m.Name) != nil {
 				return nil, fail("metric %s is listed twice", m.Name)
 			}
+			if n := len(f.Metrics); n > 0 && f.Metrics[n-1].Name > m.Name {
+				return nil, fail("metric %s comes after metric %s; metrics are sorted by name", m.Name, f.Metrics[n-1].Name)
+			}
 			f.Metrics = append(f.Metrics, m)
 		case key == "item":
+			section = 3
 			it, err := parseItem(rest)
 			if err != nil {
 				return nil, fail("%v", err)
 			}
+			if first, dup := itemLine[it.ID]; dup {
+				return nil, fail("item %q appears twice (first on line %d)", it.ID, first)
+			}
+			itemLine[it.ID] = line
 			f.Items = append(f.Items, it)
 		case key == "unit":
+			section = 4
 			u, err := parseUnit(rest)
 			if err != nil {
 				return nil, fail("%v", err)
@@ -262,13 +316,6 @@ func Parse(file string, data []byte) (*File, error) {
 	if stage < 3 {
 		line++
 		return nil, fail("the file ends before its header, probe and kind lines")
-	}
-	seen := map[string]bool{}
-	for _, it := range f.Items {
-		if seen[it.ID] {
-			return nil, fmt.Errorf("%s: item %q appears twice; re-record the golden file", file, it.ID)
-		}
-		seen[it.ID] = true
 	}
 	return f, nil
 }

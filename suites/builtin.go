@@ -27,9 +27,10 @@ func LoadBuiltin(name string) (*Suite, error) {
 }
 
 // Resolve loads a suite named on the command line: a file when one exists at
-// that path, else a built-in suite of that name.
+// that path, else a built-in suite of that name (a directory of that name,
+// such as the demo's own source directory, does not hide the built-in).
 func Resolve(arg string) (*Suite, error) {
-	if _, err := os.Stat(arg); err == nil || !slices.Contains(Builtin(), arg) {
+	if st, err := os.Stat(arg); (err == nil && !st.IsDir()) || !slices.Contains(Builtin(), arg) {
 		return Load(arg)
 	}
 	return LoadBuiltin(arg)

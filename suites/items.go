@@ -140,6 +140,8 @@ func parseItem(b []byte, kind string) (Item, error) {
 			return it, fmt.Errorf("not valid JSON at column %d: %v; each line must be one JSON object", se.Offset, se)
 		case errors.As(err, &te):
 			return it, fmt.Errorf("field %q must be %s, not a JSON %s", te.Field, te.Type, te.Value)
+		case errors.Is(err, io.ErrUnexpectedEOF):
+			return it, fmt.Errorf("not valid JSON: the object ends before its closing brace; each line must be one complete JSON object")
 		case strings.HasPrefix(err.Error(), "json: unknown field"):
 			return it, fmt.Errorf("%s; item fields are id, context, options, answer, target", strings.TrimPrefix(err.Error(), "json: "))
 		}

@@ -7,6 +7,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"io/fs"
 	"math"
 	"os"
@@ -25,14 +26,22 @@ const MaxSuiteBytes = 1 << 20
 
 // An Error is a problem at one place of a suite file.
 type Error struct {
-	File      string
+	// File is the suite file's path.
+	File string
+	// Line and Col are the 1-based place of the problem (0 when unknown;
+	// Col alone may be 0 when only the line is known).
 	Line, Col int
-	Msg       string
+	// Msg says what is wrong and how to fix it.
+	Msg string
 }
 
+// Error returns "file:line:col: msg", leaving out the parts that are unknown.
 func (e *Error) Error() string {
-	if e.Line == 0 {
+	switch {
+	case e.Line == 0:
 		return fmt.Sprintf("%s: %s", e.File, e.Msg)
+	case e.Col == 0:
+		return fmt.Sprintf("%s:%d: %s", e.File, e.Line, e.Msg)
 	}
 	return fmt.Sprintf("%s:%d:%d: %s", e.File, e.Line, e.Col, e.Msg)
 }
@@ -153,13 +162,20 @@ var nameRE = regexp.MustCompile(`^[a-z0-9][a-z0-9._-]{0,63}$`)
 func (p *parser) parse(data []byte) *Suite {
 	s := &Suite{}
 	if !utf8Valid(data) {
-		p.errorf(nil, "the file is not valid UTF-8 (byte %d); save it as UTF-8", invalidAt(data))
+		off := invalidAt(data)
+		line := 1 + bytes.Count(data[:off], []byte("\n"))
+		col := off - bytes.LastIndexByte(data[:off], '\n')
+		p.errorf(&yaml.Node{Line: line, Column: col}, "the file is not valid UTF-8 (byte offset %d); save it as UTF-8", off)
 		return s
 	}
 	var doc yaml.Node
 	dec := yaml.NewDecoder(bytes.NewReader(data))
 	if err := dec.Decode(&doc); err != nil {
-		p.errorf(nil, "not valid YAML: %v", strings.TrimPrefix(err.Error(), "yaml: "))
+		if errors.Is(err, io.EOF) {
+			p.errorf(nil, "the file is empty; a suite needs format, name and probes")
+			return s
+		}
+		p.yamlError(err)
 		return s
 	}
 	var extra yaml.Node
@@ -213,19 +229,40 @@ func (p *parser) parse(data []byte) *Suite {
 			seen[pr.Name] = pn
 			s.Probes = append(s.Probes, pr)
 		}
-		for _, pr := range s.Probes {
+		for i, pr := range s.Probes {
 			if pr.Kind != Flips {
 				continue
 			}
 			for _, of := range pr.Of {
 				o := s.Probe(of)
-				if o == nil || (o.Kind != Choice && o.Kind != Generation) {
+				switch {
+				case o == nil || (o.Kind != Choice && o.Kind != Generation):
 					p.errorf(&yaml.Node{Line: pr.Line, Column: pr.Col}, "probe %q: of names %q, which is not a choice or generation probe of this suite", pr.Name, of)
+				case !slices.Contains(s.Probes[:i], o):
+					p.errorf(&yaml.Node{Line: pr.Line, Column: pr.Col}, "probe %q: of names %q, which comes after it; move the flips probe below the probes it counts", pr.Name, of)
 				}
 			}
 		}
 	}
 	return s
+}
+
+var yamlLineRE = regexp.MustCompile(`^line (\d+): (.*)$`)
+
+// yamlError records a YAML syntax error, at its line when the decoder names
+// one.
+func (p *parser) yamlError(err error) {
+	msg := strings.TrimPrefix(err.Error(), "yaml: ")
+	var at *yaml.Node
+	if m := yamlLineRE.FindStringSubmatch(msg); m != nil {
+		if line, err := strconv.Atoi(m[1]); err == nil {
+			at, msg = &yaml.Node{Line: line}, m[2]
+		}
+	}
+	if strings.Contains(msg, "anchor") {
+		msg += "; anchors and aliases (&, *) are not allowed in suite files, write the value out"
+	}
+	p.errorf(at, "not valid YAML: %s", msg)
 }
 
 // noAliases refuses anchors, aliases and absurd nesting anywhere.
@@ -306,7 +343,8 @@ func (p *parser) probe(n *yaml.Node) *Probe {
 	case Speed:
 		pr.PromptTokens, pr.MaxTokens, pr.Repeats = 128, 32, 5
 	}
-	for key, v := range fields {
+	for _, key := range fieldOrder(n) {
+		v := fields[key]
 		switch key {
 		case "about":
 			pr.About, _ = p.str(v, label+": about")
@@ -406,7 +444,8 @@ func (p *parser) gate(n *yaml.Node, label, kind string) []Tolerance {
 			continue
 		}
 		explicitFail := false
-		for key, fv := range fields {
+		for _, key := range fieldOrder(v) {
+			fv := fields[key]
 			switch key {
 			case "better":
 				t.Better, _ = p.str(fv, ml+": better")
@@ -496,6 +535,18 @@ func (p *parser) mappingLabelled(n *yaml.Node, label string, allowed, required [
 	}
 	if !ok {
 		return nil
+	}
+	return out
+}
+
+// fieldOrder returns the keys of a mapping node in file order, so that
+// problems are reported in the order they appear (map order is random).
+func fieldOrder(n *yaml.Node) []string {
+	var out []string
+	for i := 0; i+1 < len(n.Content); i += 2 {
+		if k := n.Content[i].Value; !slices.Contains(out, k) {
+			out = append(out, k)
+		}
 	}
 	return out
 }

@@ -40,7 +40,7 @@ flags:
   --cache DIR        cache of base results (default: the user cache directory)
   --no-cache         do not read or write the cache
   --threads N        kernel threads (default: all CPUs; results do not depend on it)
-`+reportFlagsHelp+`
+` + reportFlagsHelp + `
 examples:
   sparsegate run --suite demo
   sparsegate run --suite gate.yaml --candidate ./builds/rc7 --golden golden/gate --junit junit.xml

@@ -169,16 +169,16 @@ func (rc *runCtx) flips(pp *prepared, pr *results.Probe) error {
 			}
 		}
 	}
-	for _, name := range names {
-		offset := 0 // the item's index in the unsharded concatenation
-		for _, p := range rc.s.Probes {
-			if p.Name == name {
-				break
-			}
-			if contains(names, p.Name) {
-				offset += len(rc.preps[p.Name].items)
-			}
+	// Walk the sources in suite order (whatever order `of` names them in), so
+	// that the items' indexes ascend as they are appended and Merge, which
+	// sorts by index, rebuilds exactly this order; a name listed twice counts
+	// once.
+	offset := 0 // the item's index in the unsharded concatenation
+	for _, p := range rc.s.Probes {
+		if !contains(names, p.Name) {
+			continue
 		}
+		name := p.Name
 		src := rc.done[name]
 		if src == nil {
 			return fmt.Errorf("probe %q must come before this flips probe in the suite", name)
@@ -193,6 +193,7 @@ func (rc *runCtx) flips(pp *prepared, pr *results.Probe) error {
 			c, b := *it.Correct, *it.BaseCorrect
 			pr.Items = append(pr.Items, results.Item{ID: name + "/" + it.ID, Index: offset + it.Index, Correct: &c, BaseCorrect: &b})
 		}
+		offset += len(rc.preps[name].items)
 	}
 	return nil
 }

@@ -83,6 +83,9 @@ func prepare(s *suites.Suite, p *suites.Probe, m *engine.Model) (*prepared, erro
 				}
 			}
 		}
+		if err := fitsContext(pp, m, where); err != nil {
+			return nil, err
+		}
 		if p.Kind == suites.Generation {
 			for _, stop := range p.Stop {
 				if !utf8.ValidString(stop) {
@@ -92,6 +95,31 @@ func prepare(s *suites.Suite, p *suites.Probe, m *engine.Model) (*prepared, erro
 		}
 	}
 	return pp, nil
+}
+
+// fitsContext checks that every item's prompt, with its longest option
+// (choice) or its whole token budget (generation), fits in the model's
+// positions: past them a choice could not be scored and a generation would
+// stop short and silently count as wrong.
+func fitsContext(pp *prepared, m *engine.Model, where string) error {
+	p, limit := pp.probe, m.Config.MaxPositions
+	for i := range pp.items {
+		it := &pp.items[i]
+		n := len(m.Tokenizer.EncodeForModel(prompt(pp, it)))
+		need, what := n+p.MaxTokens-1, fmt.Sprintf("+ max_tokens %d", p.MaxTokens)
+		if p.Kind == suites.Choice {
+			longest := 0
+			for _, o := range it.Options {
+				longest = max(longest, len(m.Tokenizer.Encode(o)))
+			}
+			need, what = n+longest-1, fmt.Sprintf("+ its longest option (%d tokens)", longest)
+		}
+		if need > limit {
+			return inputErr("%s: item %q (%s line %d): its prompt of %d tokens (with %d shots) %s needs %d positions, more than the model's %d; shorten the context, lower shots or max_tokens",
+				where, it.ID, p.Items, it.Line, n, p.Shots, what, need, limit)
+		}
+	}
+	return nil
 }
 
 // readText reads a probe's text, cut to maxBytes (back to a line end) when
