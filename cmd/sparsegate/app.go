@@ -53,6 +53,8 @@ func commands() []command {
 	return []command{
 		{"inspect", "describe a checkpoint: family, sizes, dtypes, shapes, tokenizer, weights hash", inspectUsage, runInspect},
 		{"run", "run a suite on a base and/or a candidate build and summarise each probe", runUsage, runRun},
+		{"bisect", "find which layer components' masks make a candidate fail", bisectUsage, runBisect},
+		{"sweep", "per-unit sensitivity: each unit alone sparse (or alone dense)", sweepUsage, runSweep},
 		{"compare", "gate saved results against golden files without running a model", compareUsage, runCompare},
 		{"golden", "update, diff or verify golden files (audited, atomic)", goldenUsage, runGolden},
 		{"merge", "merge the results of every shard of a run", mergeUsage, runMerge},

@@ -25,8 +25,9 @@ type Model struct {
 	// Tokenizer is the checkpoint's tokenizer, nil when the directory has none.
 	Tokenizer *tokenize.Tokenizer
 
-	weights *checkpoint.Weights
-	threads int
+	weights  *checkpoint.Weights
+	threads  int
+	borrowed bool // a Hybrid: the weights belong to other models
 
 	embed  *kernels.Mat // token embedding, V×d
 	pos    *kernels.Mat // learned positions (OPT, GPT-2), nil for rotary
@@ -134,7 +135,12 @@ func embedName(cfg *checkpoint.Config) string {
 }
 
 // Close releases the weight mapping. The Model must not be used afterwards.
-func (m *Model) Close() error { return m.weights.Close() }
+func (m *Model) Close() error {
+	if m.borrowed {
+		return nil
+	}
+	return m.weights.Close()
+}
 
 // Weights returns the checkpoint's weight set (for inspection and hashing).
 func (m *Model) Weights() *checkpoint.Weights { return m.weights }

@@ -111,6 +111,7 @@ func Run(s *suites.Suite, base, cand *Target, opts Options) (*results.Results, e
 			return nil, inputErr("%s: no probe named %q", s.File, name)
 		}
 	}
+	opts.Probes = withSources(s, opts.Probes)
 	if base != nil && cand != nil {
 		if err := sameTokenizer(base, cand); err != nil {
 			return nil, err
@@ -164,6 +165,27 @@ func Run(s *suites.Suite, base, cand *Target, opts Options) (*results.Results, e
 		}
 	}
 	return r, nil
+}
+
+// withSources adds to a selection of probes the choice and generation probes
+// that a selected flips probe counts.
+func withSources(s *suites.Suite, sel []string) []string {
+	if len(sel) == 0 {
+		return sel
+	}
+	out := append([]string(nil), sel...)
+	for _, name := range sel {
+		p := s.Probe(name)
+		if p.Kind != suites.Flips {
+			continue
+		}
+		for _, q := range s.Probes {
+			if (q.Kind == suites.Choice || q.Kind == suites.Generation) && (len(p.Of) == 0 || contains(p.Of, q.Name)) && !contains(out, q.Name) {
+				out = append(out, q.Name)
+			}
+		}
+	}
+	return out
 }
 
 func contains(list []string, s string) bool {
