@@ -66,11 +66,23 @@ func (p *Plan) Changed() []PlannedFile {
 func (p *Plan) Diff(maxLines int) string {
 	var b strings.Builder
 	for _, f := range p.Changed() {
-		old := "/dev/null"
-		if f.Old != nil {
-			old = f.Path
+		if f.Old == nil {
+			// A new file: its fingerprint and metrics, not every item.
+			lines := strings.Split(strings.TrimSuffix(string(f.New), "\n"), "\n")
+			items := 0
+			fmt.Fprintf(&b, "+++ %s (new file)\n", f.Path)
+			for _, l := range lines {
+				switch {
+				case strings.HasPrefix(l, "metric "):
+					b.WriteString("+" + l + "\n")
+				case strings.HasPrefix(l, "item "), strings.HasPrefix(l, "unit "):
+					items++
+				}
+			}
+			fmt.Fprintf(&b, "+(and %d item and unit records)\n", items)
+			continue
 		}
-		b.WriteString(TextDiff(old, f.Path+" (new)", string(f.Old), string(f.New), 1, maxLines))
+		b.WriteString(TextDiff(f.Path, f.Path+" (new)", string(f.Old), string(f.New), 1, maxLines))
 	}
 	return b.String()
 }

@@ -138,7 +138,9 @@ func TestApplyAndLog(t *testing.T) {
 	plan, err := PlanUpdate(updateOpts(dir, s, r))
 	require.NoError(t, err)
 	require.Len(t, plan.Changed(), 2)
-	require.Contains(t, plan.Diff(100), "--- /dev/null\n+++ "+Path(dir, "mc")+" (new)\n")
+	// A new file shows its metrics, not every item record.
+	require.Contains(t, plan.Diff(100), "+++ "+Path(dir, "mc")+" (new file)\n+metric accuracy 0.8\n")
+	require.Contains(t, plan.Diff(100), "item and unit records)\n")
 	_, err = os.Stat(dir)
 	require.True(t, os.IsNotExist(err), "planning writes nothing")
 	require.NoError(t, plan.Apply())

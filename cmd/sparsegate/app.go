@@ -51,6 +51,7 @@ func failError(err error) error { return &exitError{code: exitFail, err: err} }
 
 func commands() []command {
 	return []command{
+		{"demo", "the whole job on the embedded demo model, step by step, in a workspace", demoUsage, runDemo},
 		{"inspect", "describe a checkpoint: family, sizes, dtypes, shapes, tokenizer, weights hash", inspectUsage, runInspect},
 		{"run", "run a suite on a base and/or a candidate build and summarise each probe", runUsage, runRun},
 		{"bisect", "find which layer components' masks make a candidate fail", bisectUsage, runBisect},

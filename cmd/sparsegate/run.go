@@ -153,7 +153,7 @@ func (f *runFlags) open(c *cli, cmd string) (*session, error) {
 	case s.cand == nil:
 		return nil, usageError(cmd, "give --candidate BUILD, --base DIR or both")
 	}
-	s.opts = runner.Options{Shard: shard, Probes: f.probes}
+	s.opts = runner.Options{Shard: shard, Probes: f.probes, Memo: runner.NewMemo()}
 	if !f.noCache {
 		dir := f.cache
 		if dir == "" {
@@ -219,7 +219,7 @@ func runRun(c *cli, args []string) error {
 	}
 	if *resultsPath != "" {
 		if err := r.Save(*resultsPath); err != nil {
-			return &exitError{code: exitInternal, err: fmt.Errorf("writing %s: %w", *resultsPath, err)}
+			return fmt.Errorf("writing %s: %w", *resultsPath, err)
 		}
 	}
 	if err := writeSummary(c.stdout, r); err != nil {

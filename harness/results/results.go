@@ -13,6 +13,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"path/filepath"
 
 	"sparsegate/harness/atomicfile"
 )
@@ -197,11 +198,14 @@ func (r *Results) Encode(w io.Writer) error {
 	return err
 }
 
-// Save writes r to path atomically.
+// Save writes r to path atomically, creating its directory when missing.
 func (r *Results) Save(path string) error {
 	var buf bytes.Buffer
 	if err := r.Encode(&buf); err != nil {
 		return err
+	}
+	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+		return fmt.Errorf("making the directory for %s: %w", path, err)
 	}
 	return atomicfile.WriteFile(path, buf.Bytes())
 }

@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"sync"
 
 	"sparsegate/harness/atomicfile"
 	"sparsegate/harness/results"
@@ -35,8 +36,64 @@ func (rc *runCtx) cachePath(pp *prepared, t *Target) string {
 	return filepath.Join(rc.opts.CacheDir, k[:2], k+".json")
 }
 
-// cachedFor returns t's cached records of the probe.
+// A Memo keeps base results in memory across runs of one process (bisect
+// and sweep run the same suite many times against the same base): base
+// records of item probes and the base's logits for drift windows. Safe for
+// concurrent use.
+type Memo struct {
+	mu     sync.Mutex
+	probes map[string]*results.Probe
+	logits map[string][]float32
+}
+
+// NewMemo returns an empty memo.
+func NewMemo() *Memo {
+	return &Memo{probes: map[string]*results.Probe{}, logits: map[string][]float32{}}
+}
+
+func (m *Memo) probe(k string) (*results.Probe, bool) {
+	if m == nil {
+		return nil, false
+	}
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	p, ok := m.probes[k]
+	return p, ok
+}
+
+func (m *Memo) putProbe(k string, p *results.Probe) {
+	if m != nil {
+		m.mu.Lock()
+		m.probes[k] = p
+		m.mu.Unlock()
+	}
+}
+
+func (m *Memo) logitsFor(k string) ([]float32, bool) {
+	if m == nil {
+		return nil, false
+	}
+	m.mu.Lock()
+	defer m.mu.Unlock()
+	l, ok := m.logits[k]
+	return l, ok
+}
+
+func (m *Memo) putLogits(k string, l []float32) {
+	if m != nil {
+		m.mu.Lock()
+		m.logits[k] = l
+		m.mu.Unlock()
+	}
+}
+
+// cachedFor returns t's cached records of the probe, from the memo or the
+// cache directory.
 func (rc *runCtx) cachedFor(pp *prepared, t *Target) (*results.Probe, bool) {
+	mk := cacheKey(t, pp.probe.Hash, rc.opts.Shard)
+	if p, ok := rc.opts.Memo.probe(mk); ok {
+		return cloneProbe(p), true
+	}
 	path := rc.cachePath(pp, t)
 	if path == "" {
 		return nil, false
@@ -51,12 +108,21 @@ func (rc *runCtx) cachedFor(pp *prepared, t *Target) (*results.Probe, bool) {
 	if dec.Decode(&p) != nil || p.Hash != pp.probe.Hash || p.Kind != pp.probe.Kind {
 		return nil, false
 	}
+	rc.opts.Memo.putProbe(mk, cloneProbe(&p))
 	return &p, true
+}
+
+// cloneProbe copies a probe's item list so callers may modify items.
+func cloneProbe(p *results.Probe) *results.Probe {
+	c := *p
+	c.Items = append([]results.Item(nil), p.Items...)
+	return &c
 }
 
 // storeFor writes t's records of the probe to the cache; failures to cache
 // are not errors (the cache only saves time).
 func (rc *runCtx) storeFor(pp *prepared, t *Target, p *results.Probe) {
+	rc.opts.Memo.putProbe(cacheKey(t, pp.probe.Hash, rc.opts.Shard), cloneProbe(p))
 	path := rc.cachePath(pp, t)
 	if path == "" {
 		return

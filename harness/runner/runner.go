@@ -72,6 +72,8 @@ type Options struct {
 	Probes []string
 	// CacheDir, when set, holds cached base results.
 	CacheDir string
+	// Memo, when set, keeps base results in memory across runs.
+	Memo *Memo
 	// Progress is called as a probe advances (done of total units).
 	Progress func(probe string, done, total int)
 	// Log receives one line per finished probe (nil: none).

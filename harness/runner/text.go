@@ -105,9 +105,14 @@ func (rc *runCtx) drift(pp *prepared, pr *results.Probe) error {
 			continue
 		}
 		seq := pp.tokens[w.start:w.end]
-		xb, err := rowLogits(b.Model, bh, seq)
-		if err != nil {
-			return fmt.Errorf("window %s, base: %w", id, err)
+		mk := cacheKey(b, pp.probe.Hash, results.Shard{}) + "/" + id
+		xb, ok := rc.opts.Memo.logitsFor(mk)
+		if !ok {
+			var err error
+			if xb, err = rowLogits(b.Model, bh, seq); err != nil {
+				return fmt.Errorf("window %s, base: %w", id, err)
+			}
+			rc.opts.Memo.putLogits(mk, xb)
 		}
 		xc, err := rowLogits(c.Model, ch, seq)
 		if err != nil {
