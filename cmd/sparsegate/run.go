@@ -36,7 +36,15 @@ flags:
   --allow-new        let probes without golden files (new) and golden files
                      without results (missing) pass
   --probe NAME       run only this probe (repeatable)
-  --shard I/N        run only shard I of N (items split by a stable hash)
+  --shard I/N        run only shard I of N (items split by a stable hash);
+                     auto reads it from the environment: SPARSEGATE_SHARD_INDEX
+                     and _COUNT (1-based), JOB_COMPLETION_INDEX (Kubernetes
+                     Indexed Jobs, 0-based, count from --shard-count or
+                     SPARSEGATE_SHARD_COUNT), CI_NODE_INDEX/CI_NODE_TOTAL,
+                     CIRCLE_NODE_INDEX/CIRCLE_NODE_TOTAL,
+                     BUILDKITE_PARALLEL_JOB/BUILDKITE_PARALLEL_JOB_COUNT
+  --shard-count N    the shard count for --shard auto when the environment
+                     gives only an index
   --cache DIR        cache of base results (default: the user cache directory)
   --no-cache         do not read or write the cache
   --threads N        kernel threads (default: all CPUs; results do not depend on it)
@@ -52,8 +60,10 @@ type runFlags struct {
 	suite, candidate, base, cache string
 	probes                        []string
 	shard                         string
+	shardCount                    int
 	noCache                       bool
 	threads                       int
+	getenv                        func(string) string
 }
 
 func (f *runFlags) bind(fs interface {
@@ -66,7 +76,8 @@ func (f *runFlags) bind(fs interface {
 	fs.StringVar(&f.candidate, "candidate", "", "candidate build")
 	fs.StringVar(&f.base, "base", "", "dense base")
 	fs.StringArrayVar(&f.probes, "probe", nil, "probe to run")
-	fs.StringVar(&f.shard, "shard", "", "shard I/N")
+	fs.StringVar(&f.shard, "shard", "", "shard I/N or auto")
+	fs.IntVar(&f.shardCount, "shard-count", 0, "shard count for --shard auto")
 	fs.StringVar(&f.cache, "cache", "", "cache directory")
 	fs.BoolVar(&f.noCache, "no-cache", false, "no cache")
 	fs.IntVar(&f.threads, "threads", 0, "kernel threads")
@@ -105,6 +116,13 @@ func (f *runFlags) open(c *cli, cmd string) (*session, error) {
 		return nil, usageError(cmd, "--threads must not be negative")
 	}
 	shard, err := parseShard(cmd, f.shard)
+	if f.shard == "auto" {
+		getenv := f.getenv
+		if getenv == nil {
+			getenv = os.Getenv
+		}
+		shard, err = autoShard(cmd, getenv, f.shardCount)
+	}
 	if err != nil {
 		return nil, err
 	}
