@@ -50,6 +50,9 @@ func Compare(s *suites.Suite, r *results.Results, dir string, opts Options) (*Ve
 	if err := CheckDir(dir, false); err != nil {
 		return nil, err
 	}
+	if err := Recover(dir); err != nil {
+		return nil, err
+	}
 	v := &Verdict{Schema: VerdictSchema, Harness: version.Version, Suite: r.Suite, GoldenDir: dir, AllowNew: opts.AllowNew,
 		Fingerprint: FingerprintOf(r, nil), Shard: r.Shard, Outcome: Pass}
 	for _, p := range s.Probes {

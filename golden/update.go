@@ -105,6 +105,9 @@ func PlanUpdate(o UpdateOptions) (*Plan, error) {
 	if err := CheckDir(o.Dir, false); err != nil {
 		return nil, err
 	}
+	if err := Recover(o.Dir); err != nil {
+		return nil, err
+	}
 	for _, name := range o.Probes {
 		if o.Suite.Probe(name) == nil {
 			return nil, fmt.Errorf("the suite has no probe %q", name)
@@ -172,28 +175,51 @@ func PlanUpdate(o UpdateOptions) (*Plan, error) {
 	return plan, nil
 }
 
-// Apply writes the plan: every new golden file is first written to a
-// temporary file in the directory and synced; only when all are ready are
-// they renamed into place, the directory synced, and the approval entry
-// appended (the log too is replaced atomically). An error before the renames
-// leaves every old file as it was.
-func (p *Plan) Apply() error {
+// Apply writes the plan as one transaction. It takes the directory's lock
+// (a second update waits for nothing: it fails with a clear message), checks
+// that the files are still those the plan was made from, writes every new
+// golden file and the extended approval log to temporary files and syncs
+// them, records the renames in a journal (PendingFile), renames everything
+// into place, syncs the directory and removes the journal. A crash before the
+// journal exists leaves the old files (and stray temporaries that the next
+// operation removes); a crash after it is rolled forward by the next update,
+// compare or verify, so readers only ever see the complete old files or the
+// complete new ones.
+func (p *Plan) Apply() (err error) {
 	if err := os.MkdirAll(p.dir, 0o755); err != nil {
 		return fmt.Errorf("making golden directory: %w", err)
 	}
-	type staged struct{ tmp, dst string }
-	var ready []staged
-	cleanup := func() {
-		for _, s := range ready {
-			os.Remove(s.tmp)
+	unlock, err := lock(p.dir)
+	if err != nil {
+		return err
+	}
+	defer unlock()
+	if err := Recover(p.dir); err != nil {
+		return err
+	}
+	for _, f := range p.Files {
+		cur, err := os.ReadFile(f.Path)
+		if err != nil && !os.IsNotExist(err) {
+			return fmt.Errorf("reading %s: %w", f.Path, err)
+		}
+		if (err == nil) != (f.Old != nil) || string(cur) != string(f.Old) {
+			return fmt.Errorf("%s changed since this update was planned (another update?); run the update again", f.Path)
 		}
 	}
+	var ready []renaming
+	defer func() {
+		if err != nil {
+			for _, s := range ready {
+				os.Remove(s.tmp)
+			}
+		}
+	}()
 	stage := func(dst string, data []byte) error {
-		f, err := os.CreateTemp(filepath.Dir(dst), ".golden-*")
+		f, err := os.CreateTemp(filepath.Dir(dst), tempPrefix+"*")
 		if err != nil {
 			return fmt.Errorf("writing %s: %w", dst, err)
 		}
-		ready = append(ready, staged{f.Name(), dst})
+		ready = append(ready, renaming{f.Name(), dst})
 		if _, err := f.Write(data); err != nil {
 			f.Close()
 			return fmt.Errorf("writing %s: %w", dst, err)
@@ -209,30 +235,21 @@ func (p *Plan) Apply() error {
 	}
 	for _, f := range p.Files {
 		if err := stage(f.Path, f.New); err != nil {
-			cleanup()
 			return err
 		}
 	}
 	logPath := filepath.Join(p.dir, LogFile)
 	oldLog, err := os.ReadFile(logPath)
 	if err != nil && !os.IsNotExist(err) {
-		cleanup()
 		return fmt.Errorf("reading approval log: %w", err)
 	}
 	if err := stage(logPath, append(oldLog, []byte(p.Entry.encode())...)); err != nil {
-		cleanup()
 		return err
 	}
-	for _, s := range ready {
-		if err := os.Rename(s.tmp, s.dst); err != nil {
-			cleanup()
-			return fmt.Errorf("replacing %s: %w (files renamed before this one are updated; 'sparsegate golden verify' shows which)", s.dst, err)
-		}
-	}
-	d, err := os.Open(p.dir)
-	if err != nil {
+	if err := writeJournal(p.dir, ready); err != nil {
 		return err
 	}
-	defer d.Close()
-	return d.Sync()
+	// From here the update is committed: a crash is rolled forward.
+	ready = nil
+	return Recover(p.dir)
 }

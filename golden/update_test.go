@@ -375,14 +375,75 @@ func TestApplyFailsCleanly(t *testing.T) {
 	require.NoError(t, os.Rename(logPath+".keep", logPath))
 	require.Equal(t, before, snapshot(t, dir))
 
-	// The first golden file cannot be replaced: the rest and the log stay
-	// as they were, and the temporary files are removed.
+	// A golden file is not what the plan saw (a directory in its place):
+	// Apply refuses before writing anything; the rest and the log stay as
+	// they were, and no temporary file is left.
 	mc := Path(dir, "mc")
 	require.NoError(t, os.Rename(mc, mc+".keep"))
 	require.NoError(t, os.MkdirAll(filepath.Join(mc, "x"), 0o755))
 	err = plan.Apply()
-	require.ErrorContains(t, err, "replacing "+mc)
+	require.ErrorContains(t, err, mc)
 	require.NoError(t, os.RemoveAll(mc))
 	require.NoError(t, os.Rename(mc+".keep", mc))
 	require.Equal(t, before, snapshot(t, dir))
+}
+
+// An update interrupted after it committed (journal written, some renames
+// not done) is rolled forward by the next operation; one interrupted before
+// it committed leaves the old files, and its temporaries are removed.
+func TestInterruptedUpdateRecovers(t *testing.T) {
+	s := twoProbeSuite(t)
+	dir := filepath.Join(t.TempDir(), "golden")
+	plan, err := PlanUpdate(updateOpts(dir, s, twoProbeRun(t, s, 8)))
+	require.NoError(t, err)
+	require.NoError(t, plan.Apply())
+	plan, err = PlanUpdate(updateOpts(dir, s, twoProbeRun(t, s, 9)))
+	require.NoError(t, err)
+	// Simulate a crash after the journal: stage the files and the journal by hand.
+	var rs []renaming
+	for _, f := range plan.Files {
+		tmp := filepath.Join(dir, tempPrefix+"t-"+f.Probe)
+		require.NoError(t, os.WriteFile(tmp, f.New, 0o644))
+		rs = append(rs, renaming{tmp, f.Path})
+	}
+	require.NoError(t, writeJournal(dir, rs))
+	require.NoError(t, os.Rename(rs[0].tmp, rs[0].dst)) // one rename happened
+	rep, err := Verify(dir, s)                         // rolls forward
+	require.NoError(t, err)
+	for _, f := range plan.Files {
+		got, err := os.ReadFile(f.Path)
+		require.NoError(t, err)
+		require.Equal(t, string(f.New), string(got))
+	}
+	_, err = os.Stat(filepath.Join(dir, PendingFile))
+	require.True(t, os.IsNotExist(err))
+	// The log was not part of this hand-made journal, so verify flags the files.
+	require.NotEmpty(t, rep.Problems)
+
+	// A crash before the journal: stray temporaries only; the next operation removes them.
+	stray := filepath.Join(dir, tempPrefix+"stray")
+	require.NoError(t, os.WriteFile(stray, []byte("half"), 0o644))
+	require.NoError(t, Recover(dir))
+	_, err = os.Stat(stray)
+	require.True(t, os.IsNotExist(err))
+}
+
+// A second update while one holds the lock fails with a clear message; a
+// lock left by a process that no longer exists is taken over.
+func TestConcurrentUpdatesAreRefused(t *testing.T) {
+	s := twoProbeSuite(t)
+	dir := filepath.Join(t.TempDir(), "golden")
+	require.NoError(t, os.MkdirAll(dir, 0o755))
+	unlock, err := lock(dir)
+	require.NoError(t, err)
+	plan, err := PlanUpdate(updateOpts(dir, s, twoProbeRun(t, s, 8)))
+	require.NoError(t, err)
+	err = plan.Apply()
+	require.ErrorContains(t, err, "another golden update is running")
+	unlock()
+	// A stale lock: a pid that cannot exist.
+	require.NoError(t, os.WriteFile(filepath.Join(dir, LockFile), []byte("2147483646\n"), 0o644))
+	require.NoError(t, plan.Apply())
+	_, err = os.Stat(filepath.Join(dir, LockFile))
+	require.True(t, os.IsNotExist(err), "the lock is released")
 }

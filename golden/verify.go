@@ -30,6 +30,9 @@ func Verify(dir string, s *suites.Suite) (*Report, error) {
 	if err := CheckDir(dir, true); err != nil {
 		return nil, err
 	}
+	if err := Recover(dir); err != nil {
+		return nil, err
+	}
 	entries, err := os.ReadDir(dir)
 	if err != nil {
 		return nil, fmt.Errorf("reading golden directory: %w", err)
