@@ -408,7 +408,7 @@ func TestInterruptedUpdateRecovers(t *testing.T) {
 	}
 	require.NoError(t, writeJournal(dir, rs))
 	require.NoError(t, os.Rename(rs[0].tmp, rs[0].dst)) // one rename happened
-	rep, err := Verify(dir, s)                         // rolls forward
+	rep, err := Verify(dir, s)                          // rolls forward
 	require.NoError(t, err)
 	for _, f := range plan.Files {
 		got, err := os.ReadFile(f.Path)
