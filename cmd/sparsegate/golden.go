@@ -128,7 +128,7 @@ func runGolden(c *cli, args []string) error {
 		fmt.Fprintf(c.stdout, "%s: the golden files already hold these results; nothing to change\n", *dir)
 		return nil
 	}
-	fmt.Fprint(c.stdout, plan.Diff(200))
+	fmt.Fprint(c.stdout, plan.Diff(40))
 	fmt.Fprintf(c.stdout, "\n%d of %d golden files change.\n", len(changed), len(plan.Files))
 	if sub == "diff" {
 		return nil

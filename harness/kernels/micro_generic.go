@@ -2,50 +2,11 @@ package kernels
 
 import "math"
 
-// This file holds the hot inner loops in portable Go. They are the seam for
-// assembly: a later micro_amd64.s with build-tagged stubs replaces these
-// functions (this file then gets a "!amd64 || noasm" constraint). Every loop
-// keeps the per-element order of the determinism contract: products rounded
-// to float32 (the explicit conversion forbids fusion into an FMA), added in
+// This file holds the hot inner loops in portable Go; the GEMM micro-kernel
+// lives in tile_*.go (Go, and AVX2 assembly on amd64). Every loop keeps the
+// per-element order of the determinism contract: products rounded to
+// float32 (the explicit conversion forbids fusion into an FMA), added in
 // ascending k to a single accumulator per output element.
-
-// Register blocking of the GEMM micro-kernel: mr rows of A by nr columns of
-// B. In portable Go, 2×4 keeps all eight accumulators, both A values, one B
-// value and a product in the sixteen SSE registers without spilling, which
-// measured faster than 4×4 (spills) and 3×4.
-const (
-	mr = 2
-	nr = 4
-)
-
-// gemmMicro updates the mr×nr accumulator tile c (row-major, c[i*nr+j])
-// with Σ_kk a[kk*mr+i]·b[kk*nr+j] over kk < kc, in ascending kk.
-// a is a packed A panel (kc×mr), b a packed B panel (kc×nr).
-func gemmMicro(kc int, a, b []float32, c *[mr * nr]float32) {
-	a = a[:kc*mr]
-	b = b[:kc*nr]
-	c00, c01, c02, c03 := c[0], c[1], c[2], c[3]
-	c10, c11, c12, c13 := c[4], c[5], c[6], c[7]
-	for kk := 0; kk < kc; kk++ {
-		ap := a[kk*mr : kk*mr+mr : kk*mr+mr]
-		bp := b[kk*nr : kk*nr+nr : kk*nr+nr]
-		a0, a1 := ap[0], ap[1]
-		b0 := bp[0]
-		c00 += float32(a0 * b0)
-		c10 += float32(a1 * b0)
-		b1 := bp[1]
-		c01 += float32(a0 * b1)
-		c11 += float32(a1 * b1)
-		b2 := bp[2]
-		c02 += float32(a0 * b2)
-		c12 += float32(a1 * b2)
-		b3 := bp[3]
-		c03 += float32(a0 * b3)
-		c13 += float32(a1 * b3)
-	}
-	c[0], c[1], c[2], c[3] = c00, c01, c02, c03
-	c[4], c[5], c[6], c[7] = c10, c11, c12, c13
-}
 
 // dotAcc returns acc + Σ x[k]·w[k] over k < len(x), added in ascending k.
 // len(w) >= len(x).

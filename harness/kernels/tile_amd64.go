@@ -1,0 +1,61 @@
+//go:build amd64 && !noasm
+
+package kernels
+
+import "golang.org/x/sys/cpu"
+
+// Register blocking of the GEMM micro-kernel on amd64: 4 rows of A by 16
+// columns of B, eight 8-wide AVX2 accumulators. The tile shape never changes
+// the bits: every output is the same ascending chain whatever the tile.
+const (
+	mr = 4
+	nr = 16
+)
+
+// hasAVX2 is fixed at start-up by CPU feature detection.
+var hasAVX2 = cpu.X86.HasAVX2
+
+// gemmMicro updates the mr×nr accumulator tile c (row-major, c[i*nr+j])
+// with Σ_kk a[kk*mr+i]·b[kk*nr+j] over kk < kc, in ascending kk, each
+// product rounded to float32 before it is added. a is a packed A panel
+// (kc×mr), b a packed B panel (kc×nr). With AVX2 the assembly twin runs
+// (VMULPS then VADDPS per lane: the same bits as the Go loop, no FMA).
+func gemmMicro(kc int, a, b []float32, c *[mr * nr]float32) {
+	if kc <= 0 {
+		return
+	}
+	a = a[:kc*mr]
+	b = b[:kc*nr]
+	if hasAVX2 {
+		gemmMicroAVX2(kc, &a[0], &b[0], c)
+		return
+	}
+	gemmMicroGo(kc, a, b, c)
+}
+
+// gemmMicroAVX2 is gemmMicro in AVX2 assembly (micro_amd64.s).
+//
+//go:noescape
+func gemmMicroAVX2(kc int, a, b *float32, c *[mr * nr]float32)
+
+// gemmMicroGo is gemmMicro's portable loop, for CPUs without AVX2.
+func gemmMicroGo(kc int, a, b []float32, c *[mr * nr]float32) {
+	for kk := 0; kk < kc; kk++ {
+		ap := a[kk*mr : kk*mr+mr]
+		bp := b[kk*nr : kk*nr+nr]
+		for i, av := range ap {
+			row := c[i*nr : i*nr+nr]
+			for j, bv := range bp {
+				row[j] += float32(av * bv)
+			}
+		}
+	}
+}
+
+// MicroKernel names the GEMM micro-kernel in use (benchmarks print it).
+func MicroKernel() string {
+	if hasAVX2 {
+		return "avx2 4x16"
+	}
+	return "go 4x16"
+}
