@@ -37,6 +37,9 @@ flags:
   --html FILE        HTML report with the sensitivity chart
   --threads N        kernel threads
   --cache DIR, --no-cache   base-result cache (see 'run')
+  --no-prefix-cache  recompute the layers before the first sparse unit in
+                     every step (by default perplexity and drift windows start
+                     from the base's residual stream there, kept in memory)
 
 exit codes: 0 culprits found or nothing to bisect, 1 the failure is not in
 the masks, 2 bad input, 3 a step could not run
@@ -56,6 +59,7 @@ report's sensitivity chart. Useful to pick per-layer budgets.
 flags:
   --suite, --candidate, --base, --probe, --threads, --cache, --no-cache as for bisect
   --only-dense       also measure each unit dense with the rest sparse
+  --no-prefix-cache  recompute the dense layers before the first sparse unit
   --json FILE        verdict JSON with the sensitivity rows
   --html FILE        HTML report with the sensitivity chart
 
@@ -69,8 +73,9 @@ type unitSearch struct {
 	s       *session
 	units   []sparsity.Unit
 	probes  []string
-	golden  string // golden directory compared against
-	verdict map[string]*golden.Verdict
+	golden   string // golden directory compared against
+	verdict  map[string]*golden.Verdict
+	noPrefix bool // recompute the dense layers before the first sparse unit
 }
 
 func (u *unitSearch) key(set []int) string { return fmt.Sprint(set) }
@@ -83,6 +88,13 @@ func (u *unitSearch) target(set []int) (*runner.Target, error) {
 	}
 	cand := u.s.cand
 	t := &runner.Target{Model: cand.Model, Build: cand.Build, Info: cand.Info}
+	if !u.noPrefix && len(set) > 0 {
+		// Layers before the first sparse unit run as in the base: start there.
+		t.DenseBefore = u.units[set[0]].Layer
+		for _, i := range set {
+			t.DenseBefore = min(t.DenseBefore, u.units[i].Layer)
+		}
+	}
 	var dense []string
 	for _, unit := range u.units {
 		if !sparse[unit] {
@@ -166,7 +178,7 @@ func describeMetric(probe string, m *golden.MetricVerdict) string {
 }
 
 // setup opens the builds, lists the units and picks the probes.
-func setupSearch(c *cli, cmd string, f *runFlags, goldenDir string) (*unitSearch, func(), error) {
+func setupSearch(c *cli, cmd string, f *runFlags, goldenDir string, noPrefix bool) (*unitSearch, func(), error) {
 	if f.candidate == "" {
 		return nil, nil, usageError(cmd, "--candidate BUILD is required")
 	}
@@ -174,7 +186,7 @@ func setupSearch(c *cli, cmd string, f *runFlags, goldenDir string) (*unitSearch
 	if err != nil {
 		return nil, nil, err
 	}
-	u := &unitSearch{c: c, s: s, verdict: map[string]*golden.Verdict{}, golden: goldenDir}
+	u := &unitSearch{c: c, s: s, verdict: map[string]*golden.Verdict{}, golden: goldenDir, noPrefix: noPrefix}
 	cleanup := s.close
 	fail := func(err error) (*unitSearch, func(), error) { cleanup(); return nil, nil, err }
 	if s.cand.Build != nil {
@@ -251,6 +263,7 @@ func runBisect(c *cli, args []string) error {
 	var f runFlags
 	f.bind(fs)
 	goldenDir := fs.String("golden", "", "golden directory")
+	noPrefix := fs.Bool("no-prefix-cache", false, "recompute dense prefixes")
 	var rf reportFlags
 	fs.StringVar(&rf.json, "json", "", "verdict JSON")
 	fs.StringVar(&rf.html, "html", "", "HTML report")
@@ -260,7 +273,7 @@ func runBisect(c *cli, args []string) error {
 	if fs.NArg() > 0 {
 		return usageError("bisect", "unexpected arguments %q", fs.Args())
 	}
-	u, cleanup, err := setupSearch(c, "bisect", &f, *goldenDir)
+	u, cleanup, err := setupSearch(c, "bisect", &f, *goldenDir, *noPrefix)
 	if err != nil {
 		return err
 	}
@@ -325,7 +338,7 @@ func runBisect(c *cli, args []string) error {
 	if res.Interaction {
 		fmt.Fprintf(c.stdout, "s (an interaction: each alone passes, together they fail)")
 	}
-	fmt.Fprintf(c.stdout, ", found in %d probe runs:\n", res.Runs)
+	fmt.Fprintf(c.stdout, ", found in %d probe runs (dense prefixes: %d reused, %d computed):\n", res.Runs, u.s.opts.Memo.Hits, u.s.opts.Memo.Misses)
 	var sens []golden.Sensitivity
 	for _, i := range res.Culprits {
 		v, ok := u.verdict[u.key([]int{i})]
@@ -385,6 +398,7 @@ func runSweep(c *cli, args []string) error {
 	var f runFlags
 	f.bind(fs)
 	onlyDense := fs.Bool("only-dense", false, "also each unit dense")
+	noPrefix := fs.Bool("no-prefix-cache", false, "recompute dense prefixes")
 	var rf reportFlags
 	fs.StringVar(&rf.json, "json", "", "verdict JSON")
 	fs.StringVar(&rf.html, "html", "", "HTML report")
@@ -394,7 +408,7 @@ func runSweep(c *cli, args []string) error {
 	if fs.NArg() > 0 {
 		return usageError("sweep", "unexpected arguments %q", fs.Args())
 	}
-	u, cleanup, err := setupSearch(c, "sweep", &f, "")
+	u, cleanup, err := setupSearch(c, "sweep", &f, "", *noPrefix)
 	if err != nil {
 		return err
 	}

@@ -88,6 +88,14 @@ type row struct {
 // one row of Hidden values per token, sequences back to back in batch order.
 // hook may be nil. Sessions must be distinct.
 func (m *Model) Forward(sessions []*Session, tokens [][]int, hook Hook) ([]float32, error) {
+	out, _, err := m.forward(sessions, tokens, hook, nil, -1)
+	return out, err
+}
+
+// forward runs layers [from.Layer, L) (all, with the embeddings, when from is
+// nil), or stops before layer stop (>= 0) and returns the residual stream
+// entering it and the previous layer.
+func (m *Model) forward(sessions []*Session, tokens [][]int, hook Hook, from *Prefix, stop int) ([]float32, *Prefix, error) {
 	if len(sessions) != len(tokens) {
 		panic("engine: Forward needs one token slice per session")
 	}
@@ -98,35 +106,54 @@ func (m *Model) Forward(sessions []*Session, tokens [][]int, hook Hook) ([]float
 			panic("engine: session of another model")
 		}
 		if s.n+len(tokens[b]) > cfg.MaxPositions {
-			return nil, fmt.Errorf("sequence %d: %d tokens exceed the model's %d positions; use a shorter window", b, s.n+len(tokens[b]), cfg.MaxPositions)
+			return nil, nil, fmt.Errorf("sequence %d: %d tokens exceed the model's %d positions; use a shorter window", b, s.n+len(tokens[b]), cfg.MaxPositions)
 		}
 		for t, id := range tokens[b] {
 			if id < 0 || id >= cfg.VocabSize {
-				return nil, fmt.Errorf("sequence %d, position %d: token id %d is outside the vocabulary of %d", b, s.n+t, id, cfg.VocabSize)
+				return nil, nil, fmt.Errorf("sequence %d, position %d: token id %d is outside the vocabulary of %d", b, s.n+t, id, cfg.VocabSize)
 			}
 			rows = append(rows, row{seq: b, pos: s.n + t})
 		}
 	}
 	R, d := len(rows), cfg.Hidden
 	if R == 0 {
-		return nil, nil
+		return nil, nil, nil
 	}
 	st := m.newState(R)
 	st.rows, st.sessions, st.hook = rows, sessions, hook
-	// Embeddings.
-	r := 0
-	for b := range tokens {
-		for _, id := range tokens[b] {
-			x := st.x[r*d : (r+1)*d]
-			m.embed.Row(x, id)
-			if m.pos != nil {
-				m.pos.Row(st.tmp[:d], rows[r].pos+cfg.PositionOffset)
-				kernels.Add(x, x, st.tmp[:d])
+	first := 0
+	if from != nil {
+		if len(from.At) != R*d || (from.Layer > 0 && len(from.Prev) != R*d) {
+			panic("engine: prefix of another shape")
+		}
+		first = from.Layer
+		copy(st.x, from.At)
+		if hook != nil && from.Layer > 0 {
+			st.layerIn = append(st.layerIn[:0], from.Prev...)
+		}
+	} else {
+		// Embeddings.
+		r := 0
+		for b := range tokens {
+			for _, id := range tokens[b] {
+				x := st.x[r*d : (r+1)*d]
+				m.embed.Row(x, id)
+				if m.pos != nil {
+					m.pos.Row(st.tmp[:d], rows[r].pos+cfg.PositionOffset)
+					kernels.Add(x, x, st.tmp[:d])
+				}
+				r++
 			}
-			r++
 		}
 	}
-	for li := range m.layers {
+	var prev []float32 // residual entering the previous layer (for stop)
+	for li := first; li < len(m.layers); li++ {
+		if li == stop {
+			return nil, &Prefix{Layer: li, At: append([]float32(nil), st.x...), Prev: prev}, nil
+		}
+		if stop > 0 && li == stop-1 {
+			prev = append([]float32(nil), st.x...)
+		}
 		if hook != nil {
 			st.prevIn, st.layerIn = st.layerIn, st.prevIn
 			st.layerIn = append(st.layerIn[:0], st.x...)
@@ -138,8 +165,55 @@ func (m *Model) Forward(sessions []*Session, tokens [][]int, hook Hook) ([]float
 	for r := 0; r < R; r++ {
 		m.norm(out[r*d:(r+1)*d], st.x[r*d:(r+1)*d], m.normW, m.normB)
 	}
+	last := len(m.layers) - 1
 	for _, s := range sessions {
-		s.n = len(s.k[0]) / (cfg.KVHeads * cfg.HeadDim)
+		s.n = len(s.k[last]) / (cfg.KVHeads * cfg.HeadDim)
+	}
+	return out, nil, nil
+}
+
+// A Prefix is the residual stream of a fresh sequence entering layer Layer
+// (At) and, when Layer > 0, entering layer Layer−1 (Prev, which lookahead
+// predictors read), computed densely: what every run whose layers before
+// Layer are dense shares, so bisect and sweep need not recompute it.
+type Prefix struct {
+	Layer    int
+	At, Prev []float32
+}
+
+// DensePrefix runs a fresh sequence densely through layers [0, layer) and
+// returns the residual stream entering layer (0 < layer < Layers).
+func (m *Model) DensePrefix(tokens []int, layer int) (*Prefix, error) {
+	if layer <= 0 || layer >= len(m.layers) {
+		panic("engine: prefix layer out of range")
+	}
+	_, p, err := m.forward([]*Session{m.NewSession()}, [][]int{tokens}, nil, nil, layer)
+	return p, err
+}
+
+// ForwardFrom runs a fresh sequence from a Prefix of the same tokens:
+// layers [p.Layer, Layers) with the hook, returning the final hidden rows as
+// Forward does. The bits equal Forward's when the hook keeps the layers
+// before p.Layer dense. The session it uses cannot be continued, so it is
+// not exposed.
+func (m *Model) ForwardFrom(tokens []int, p *Prefix, hook Hook) ([]float32, error) {
+	out, _, err := m.forward([]*Session{m.NewSession()}, [][]int{tokens}, hook, p, -1)
+	return out, err
+}
+
+// LogProbsFrom is LogProbs for a fresh sequence started from a Prefix, which
+// must be DensePrefix(tokens[:len(tokens)-1], layer): the rows that predict.
+func (m *Model) LogProbsFrom(tokens []int, p *Prefix, hook Hook) ([]float64, error) {
+	if len(tokens) < 2 {
+		return []float64{}, nil
+	}
+	hidden, err := m.ForwardFrom(tokens[:len(tokens)-1], p, hook)
+	if err != nil {
+		return nil, err
+	}
+	out := make([]float64, len(tokens)-1)
+	if err := m.targetLogProbs(hidden, tokens[1:], out, nil); err != nil {
+		return nil, err
 	}
 	return out, nil
 }

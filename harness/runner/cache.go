@@ -11,6 +11,7 @@ import (
 	"sync"
 
 	"sparsegate/harness/atomicfile"
+	"sparsegate/harness/engine"
 	"sparsegate/harness/results"
 	"sparsegate/harness/version"
 )
@@ -41,14 +42,47 @@ func (rc *runCtx) cachePath(pp *prepared, t *Target) string {
 // records of item probes and the base's logits for drift windows. Safe for
 // concurrent use.
 type Memo struct {
-	mu     sync.Mutex
-	probes map[string]*results.Probe
-	logits map[string][]float32
+	mu       sync.Mutex
+	probes   map[string]*results.Probe
+	logits   map[string][]float32
+	prefixes map[string]*engine.Prefix
+	bytes    int64
+	// Hits and Misses count dense prefixes reused and computed.
+	Hits, Misses int
 }
+
+// MemoBytes bounds the floats a Memo keeps (logits and prefixes); past it,
+// results are recomputed instead of kept.
+const MemoBytes = 512 << 20
 
 // NewMemo returns an empty memo.
 func NewMemo() *Memo {
-	return &Memo{probes: map[string]*results.Probe{}, logits: map[string][]float32{}}
+	return &Memo{probes: map[string]*results.Probe{}, logits: map[string][]float32{}, prefixes: map[string]*engine.Prefix{}}
+}
+
+// prefix returns the dense prefix of a window, computing and keeping it.
+func (m *Memo) prefix(k string, compute func() (*engine.Prefix, error)) (*engine.Prefix, error) {
+	m.mu.Lock()
+	p, ok := m.prefixes[k]
+	if ok {
+		m.Hits++
+	}
+	m.mu.Unlock()
+	if ok {
+		return p, nil
+	}
+	p, err := compute()
+	if err != nil {
+		return nil, err
+	}
+	m.mu.Lock()
+	m.Misses++
+	if size := int64(4 * (len(p.At) + len(p.Prev))); m.bytes+size <= MemoBytes {
+		m.prefixes[k] = p
+		m.bytes += size
+	}
+	m.mu.Unlock()
+	return p, nil
 }
 
 func (m *Memo) probe(k string) (*results.Probe, bool) {
@@ -82,7 +116,10 @@ func (m *Memo) logitsFor(k string) ([]float32, bool) {
 func (m *Memo) putLogits(k string, l []float32) {
 	if m != nil {
 		m.mu.Lock()
-		m.logits[k] = l
+		if size := int64(4 * len(l)); m.bytes+size <= MemoBytes {
+			m.logits[k] = l
+			m.bytes += size
+		}
 		m.mu.Unlock()
 	}
 }

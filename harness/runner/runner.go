@@ -53,6 +53,11 @@ type Target struct {
 	Dense map[sparsity.Unit]bool
 	// Info describes the target in Results.
 	Info results.Build
+	// DenseBefore, when > 0, promises that layers before it run exactly as
+	// in the dense base (bisect and sweep know it): perplexity and drift
+	// windows then start from the base's cached residual stream at that
+	// layer (Options.Memo) instead of recomputing those layers.
+	DenseBefore int
 }
 
 // hook returns a fresh hook for one goroutine, or nil for a checkpoint.

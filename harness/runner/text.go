@@ -37,7 +37,7 @@ func (rc *runCtx) perplexity(pp *prepared, pr *results.Probe) error {
 		if !inShard(rc.opts.Shard, pp.probe.Name, id) {
 			continue
 		}
-		lp, err := m.LogProbs(pp.tokens[w.start:w.end], hook)
+		lp, err := rc.windowLogProbs(t, pp, wi, hook)
 		if err != nil {
 			return fmt.Errorf("window %s (tokens %d–%d): %w", id, w.start, w.end, err)
 		}
@@ -64,6 +64,54 @@ func rowLogits(m *engine.Model, hook engine.Hook, seq []int) ([]float32, error) 
 	rows := len(seq) - 1
 	logits := make([]float32, rows*m.Config.VocabSize)
 	m.Logits(logits, hidden, rows)
+	return logits, nil
+}
+
+// prefixOf returns the base's dense prefix of window wi for a target whose
+// layers before DenseBefore are dense, or nil when there is none to use.
+func (rc *runCtx) prefixOf(t *Target, pp *prepared, wi int) (*engine.Prefix, error) {
+	if t.DenseBefore <= 0 || t.DenseBefore >= t.Model.Config.Layers || rc.opts.Memo == nil || rc.base == nil {
+		return nil, nil
+	}
+	w := pp.windows[wi]
+	k := fmt.Sprintf("%s\x00%s\x00%d\x00%d", rc.base.Info.WeightsHash, pp.probe.Hash, wi, t.DenseBefore)
+	return rc.opts.Memo.prefix(k, func() (*engine.Prefix, error) {
+		return t.Model.DensePrefix(pp.tokens[w.start:w.end-1], t.DenseBefore)
+	})
+}
+
+// windowLogProbs scores window wi on target t, from a dense prefix when the
+// target allows one (the same bits either way).
+func (rc *runCtx) windowLogProbs(t *Target, pp *prepared, wi int, hook engine.Hook) ([]float64, error) {
+	w := pp.windows[wi]
+	p, err := rc.prefixOf(t, pp, wi)
+	if err != nil || p == nil {
+		if err != nil {
+			return nil, err
+		}
+		return t.Model.LogProbs(pp.tokens[w.start:w.end], hook)
+	}
+	return t.Model.LogProbsFrom(pp.tokens[w.start:w.end], p, hook)
+}
+
+// windowLogits is rowLogits of window wi, from a dense prefix when allowed.
+func (rc *runCtx) windowLogits(t *Target, pp *prepared, wi int, hook engine.Hook) ([]float32, error) {
+	w := pp.windows[wi]
+	seq := pp.tokens[w.start:w.end]
+	p, err := rc.prefixOf(t, pp, wi)
+	if err != nil {
+		return nil, err
+	}
+	if p == nil {
+		return rowLogits(t.Model, hook, seq)
+	}
+	hidden, err := t.Model.ForwardFrom(seq[:len(seq)-1], p, hook)
+	if err != nil {
+		return nil, err
+	}
+	rows := len(seq) - 1
+	logits := make([]float32, rows*t.Model.Config.VocabSize)
+	t.Model.Logits(logits, hidden, rows)
 	return logits, nil
 }
 
@@ -114,7 +162,7 @@ func (rc *runCtx) drift(pp *prepared, pr *results.Probe) error {
 			}
 			rc.opts.Memo.putLogits(mk, xb)
 		}
-		xc, err := rowLogits(c.Model, ch, seq)
+		xc, err := rc.windowLogits(c, pp, wi, ch)
 		if err != nil {
 			return fmt.Errorf("window %s, candidate: %w", id, err)
 		}
