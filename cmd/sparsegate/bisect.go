@@ -69,10 +69,10 @@ example:
 
 // unitSearch runs probes of a suite with a chosen set of units sparse.
 type unitSearch struct {
-	c       *cli
-	s       *session
-	units   []sparsity.Unit
-	probes  []string
+	c        *cli
+	s        *session
+	units    []sparsity.Unit
+	probes   []string
 	golden   string // golden directory compared against
 	verdict  map[string]*golden.Verdict
 	noPrefix bool // recompute the dense layers before the first sparse unit
