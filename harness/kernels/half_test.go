@@ -45,10 +45,16 @@ func TestF16ToF32Exhaustive(t *testing.T) {
 		checkDecode(t, "F16ToF32", h, dst[i], ref)
 		checkDecode(t, "F16Value", h, kernels.F16Value(h), ref)
 		if math.IsNaN(ref) {
-			// The payload moves to the top of the float32 mantissa (common practice, no source).
+			// The payload moves to the top of the float32 mantissa (common
+			// practice, no source); the F16C instruction also sets the quiet
+			// bit of a signalling NaN (IEEE 754 conversion semantics), so
+			// that bit may differ between kernel paths.
 			want := uint32(h&0x8000)<<16 | 0x7f800000 | uint32(h&0x3ff)<<13
-			if math.Float32bits(dst[i]) != want {
-				t.Fatalf("F16ToF32 %#04x: NaN bits %#x, want %#x", h, math.Float32bits(dst[i]), want)
+			if got := math.Float32bits(dst[i]); got != want && got != want|0x400000 {
+				t.Fatalf("F16ToF32 %#04x: NaN bits %#x, want %#x", h, got, want)
+			}
+			if got := math.Float32bits(kernels.F16Value(h)); got != want {
+				t.Fatalf("F16Value %#04x: NaN bits %#x, want %#x", h, got, want)
 			}
 		}
 	}

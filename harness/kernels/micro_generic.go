@@ -42,8 +42,9 @@ func axpyAcc(alpha float32, x, y []float32) {
 	}
 }
 
-// f16ToF32Slice converts binary16 bit patterns; len(dst) == len(src).
-func f16ToF32Slice(dst []float32, src []uint16) {
+// f16ToF32Go converts binary16 bit patterns; len(dst) == len(src). It is
+// f16ToF32Slice's portable twin.
+func f16ToF32Go(dst []float32, src []uint16) {
 	dst = dst[:len(src)]
 	for i, h := range src {
 		exp := h & 0x7c00

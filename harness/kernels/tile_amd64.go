@@ -59,3 +59,25 @@ func MicroKernel() string {
 	}
 	return "go 4x16"
 }
+
+// hasF16C is fixed at start-up by CPU feature detection.
+var hasF16C = cpu.X86.HasF16C && cpu.X86.HasAVX
+
+// f16ToF32Slice converts binary16 bit patterns; len(dst) == len(src). With
+// F16C, blocks of eight convert with VCVTPH2PS (exact, like the Go twin;
+// only NaN payloads may differ: the instruction quiets signalling NaNs).
+func f16ToF32Slice(dst []float32, src []uint16) {
+	n := len(src)
+	dst = dst[:n]
+	if hasF16C && n >= 8 {
+		blocks := n &^ 7
+		f16ToF32F16C(&dst[0], &src[0], blocks)
+		dst, src = dst[blocks:], src[blocks:]
+	}
+	f16ToF32Go(dst, src)
+}
+
+// f16ToF32F16C converts n (a multiple of 8) halves at src into dst (half_amd64.s).
+//
+//go:noescape
+func f16ToF32F16C(dst *float32, src *uint16, n int)

@@ -44,3 +44,41 @@ func TestAVX2MicroKernelMatchesGoTwin(t *testing.T) {
 		}
 	}
 }
+
+// F16C conversion equals the Go twin on every binary16 value (NaNs stay
+// NaN with the same sign), at every length and offset around a block.
+func TestF16CConversionMatchesGoTwin(t *testing.T) {
+	if !hasF16C {
+		t.Skip("this CPU has no F16C")
+	}
+	src := make([]uint16, 1<<16)
+	for i := range src {
+		src[i] = uint16(i)
+	}
+	want := make([]float32, len(src))
+	got := make([]float32, len(src)+1)
+	f16ToF32Go(want, src)
+	got[len(src)] = 42 // guard
+	f16ToF32Slice(got[:len(src)], src)
+	require := func(cond bool, format string, args ...any) {
+		if !cond {
+			t.Fatalf(format, args...)
+		}
+	}
+	require(got[len(src)] == 42, "wrote past the end")
+	for i := range src {
+		w, g := want[i], got[i]
+		if w != w {
+			require(g != g && math.Signbit(float64(g)) == math.Signbit(float64(w)), "half %04x: go NaN, f16c %v", i, g)
+			continue
+		}
+		require(math.Float32bits(w) == math.Float32bits(g), "half %04x: go %v, f16c %v", i, w, g)
+	}
+	for n := 0; n < 20; n++ {
+		d := make([]float32, n)
+		f16ToF32Slice(d, src[1000:1000+n])
+		for i := range d {
+			require(d[i] == want[1000+i], "length %d, element %d", n, i)
+		}
+	}
+}

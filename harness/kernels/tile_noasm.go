@@ -44,3 +44,6 @@ func gemmMicro(kc int, a, b []float32, c *[mr * nr]float32) {
 
 // MicroKernel names the GEMM micro-kernel in use (benchmarks print it).
 func MicroKernel() string { return "go 2x4" }
+
+// f16ToF32Slice converts binary16 bit patterns; len(dst) == len(src).
+func f16ToF32Slice(dst []float32, src []uint16) { f16ToF32Go(dst, src) }
