@@ -59,3 +59,28 @@ loop:
 	VMOVUPS Y7, 224(DX)
 	VZEROUPPER
 	RET
+
+// func axpyAVX2(alpha float32, x, y *float32, n int)
+//
+// y[j] += alpha·x[j] for j < n (a multiple of 8), the product rounded
+// (VMULPS) and then added (VADDPS): the reference loop of axpyGo.
+TEXT ·axpyAVX2(SB), NOSPLIT, $0-32
+	VBROADCASTSS alpha+0(FP), Y0
+	MOVQ         x+8(FP), SI
+	MOVQ         y+16(FP), DI
+	MOVQ         n+24(FP), CX
+	SHRQ         $3, CX
+	JZ           axpydone
+
+axpyloop:
+	VMULPS  (SI), Y0, Y1
+	VADDPS  (DI), Y1, Y1
+	VMOVUPS Y1, (DI)
+	ADDQ    $32, SI
+	ADDQ    $32, DI
+	DECQ    CX
+	JNZ     axpyloop
+
+axpydone:
+	VZEROUPPER
+	RET

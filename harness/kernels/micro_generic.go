@@ -33,9 +33,9 @@ func dot4Acc(acc *[4]float32, x, w0, w1, w2, w3 []float32) {
 	acc[0], acc[1], acc[2], acc[3] = s0, s1, s2, s3
 }
 
-// axpyAcc does y[j] += alpha·x[j] (product rounded, then added) for
-// j < len(y); len(x) >= len(y).
-func axpyAcc(alpha float32, x, y []float32) {
+// axpyGo does y[j] += alpha·x[j] (product rounded, then added) for
+// j < len(y); len(x) >= len(y). It is axpyAcc's portable twin.
+func axpyGo(alpha float32, x, y []float32) {
 	x = x[:len(y)]
 	for j, v := range x {
 		y[j] += float32(alpha * v)

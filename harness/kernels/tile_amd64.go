@@ -81,3 +81,22 @@ func f16ToF32Slice(dst []float32, src []uint16) {
 //
 //go:noescape
 func f16ToF32F16C(dst *float32, src *uint16, n int)
+
+// axpyAcc does y[j] += alpha·x[j] (product rounded, then added) for
+// j < len(y); len(x) >= len(y). With AVX2, blocks of eight run as VMULPS
+// then VADDPS: the Go twin's bits.
+func axpyAcc(alpha float32, x, y []float32) {
+	n := len(y)
+	x = x[:n]
+	if hasAVX2 && n >= 8 {
+		blocks := n &^ 7
+		axpyAVX2(alpha, &x[0], &y[0], blocks)
+		x, y = x[blocks:], y[blocks:]
+	}
+	axpyGo(alpha, x, y)
+}
+
+// axpyAVX2 is axpyAcc on n (a multiple of 8) elements (micro_amd64.s).
+//
+//go:noescape
+func axpyAVX2(alpha float32, x, y *float32, n int)

@@ -82,3 +82,31 @@ func TestF16CConversionMatchesGoTwin(t *testing.T) {
 		}
 	}
 }
+
+// The AVX2 axpy gives the Go twin's bits at every length, and writes
+// nothing past y.
+func TestAVX2AxpyMatchesGoTwin(t *testing.T) {
+	if !hasAVX2 {
+		t.Skip("this CPU has no AVX2")
+	}
+	r := rand.New(rand.NewPCG(3, 4))
+	for n := 0; n < 70; n++ {
+		x := make([]float32, n)
+		y0 := make([]float32, n+1)
+		for i := range x {
+			x[i] = float32(r.NormFloat64())
+			y0[i] = float32(r.NormFloat64())
+		}
+		y0[n] = 7
+		want := append([]float32(nil), y0...)
+		got := append([]float32(nil), y0...)
+		alpha := float32(r.NormFloat64())
+		axpyGo(alpha, x, want[:n])
+		axpyAcc(alpha, x, got[:n])
+		for i := range want {
+			if math.Float32bits(want[i]) != math.Float32bits(got[i]) {
+				t.Fatalf("n %d, element %d: go %v, avx2 %v", n, i, want[i], got[i])
+			}
+		}
+	}
+}
