@@ -63,8 +63,8 @@ func commands() []command {
 		{"score", "score a text file with a checkpoint: tokens, mean NLL, perplexity, bits per byte", scoreUsage, runScore},
 		{"sparsify", "make a sparse build from a dense checkpoint: calibrate per-layer predictors", sparsifyUsage, runSparsify},
 		{"synth", "write a random-weight checkpoint of a family (for smoke tests and benchmarks)", synthUsage, runSynth},
-		{"version", "print the version", "usage: sparsegate version\n", runVersion},
-		{"help", "show help for a command", "usage: sparsegate help [COMMAND]\n", runHelp},
+		{"version", "print the version", versionUsage, runVersion},
+		{"help", "show help for a command", helpUsage, runHelp},
 	}
 }
 
@@ -126,7 +126,22 @@ func writeOverview(w io.Writer) {
 	io.WriteString(w, b.String())
 }
 
+const helpUsage = `usage: sparsegate help [COMMAND]
+
+Without COMMAND, list the commands; with one, show its flags and examples.
+
+flags: none
+
+examples:
+  sparsegate help
+  sparsegate help run
+`
+
 func runHelp(c *cli, args []string) error {
+	if len(args) == 1 && isHelpFlag(args[0]) {
+		io.WriteString(c.stderr, helpUsage)
+		return nil
+	}
 	if len(args) == 0 {
 		writeOverview(c.stdout)
 		return nil
@@ -141,6 +156,9 @@ func runHelp(c *cli, args []string) error {
 	io.WriteString(c.stdout, cmd.usage)
 	return nil
 }
+
+// isHelpFlag reports whether a lone argument asks for a command's help.
+func isHelpFlag(arg string) bool { return arg == "-h" || arg == "--help" }
 
 // newFlags makes a flag set for a command whose errors and help go to stderr.
 func newFlags(c *cli, name, usage string) *pflag.FlagSet {

@@ -304,7 +304,11 @@ func runBisect(c *cli, args []string) error {
 	var stepErr error
 	res := bisect.Search(len(u.units), func(set []int) (bisect.Outcome, string) {
 		step++
-		v, _, err := u.run(set)
+		v, ok := u.verdict[u.key(set)] // the all-sparse run above, when its probes are these
+		var err error
+		if !ok {
+			v, _, err = u.run(set)
+		}
 		if err != nil {
 			stepErr = err
 			fmt.Fprintf(c.stdout, "  step %2d: %2d sparse: unresolved: %v\n", step, len(set), err)

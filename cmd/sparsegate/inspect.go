@@ -30,6 +30,8 @@ and tokenizer files): family, parameter count, dtypes, per-layer tensor shapes,
 tokenizer, and the SHA-256 of the weights. Every weight is scanned for NaN and
 Inf; any found are listed and the exit code is 2.
 
+flags: none
+
 examples:
   sparsegate inspect
   sparsegate inspect ./models/opt-125m

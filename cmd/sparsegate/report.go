@@ -2,6 +2,7 @@ package main
 
 import (
 	"fmt"
+	"strings"
 
 	"sparsegate/golden"
 	"sparsegate/harness/results"
@@ -97,6 +98,9 @@ Merge the results of every shard of one run ('run --shard I/N --results
 SHARD.json') into the results of the whole run: items in their unsharded
 order and metrics recomputed from them, equal to an unsharded run's.
 
+flags:
+  --out FILE         the merged results JSON to write (required)
+
 example:
   sparsegate merge --out merged.json shard-1.json shard-2.json shard-3.json
 `
@@ -120,7 +124,12 @@ func runMerge(c *cli, args []string) error {
 	}
 	m, err := runner.Merge(parts)
 	if err != nil {
-		return err
+		// Merge numbers the results in the order given; name the files.
+		var named []string
+		for i, p := range fs.Args() {
+			named = append(named, fmt.Sprintf("%d = %s", i+1, p))
+		}
+		return fmt.Errorf("merge: %w (results %s); give the results of every shard of one run, each once", err, strings.Join(named, ", "))
 	}
 	if err := m.Save(*out); err != nil {
 		return &exitError{code: exitInternal, err: err}

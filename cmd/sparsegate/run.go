@@ -115,6 +115,9 @@ func (f *runFlags) open(c *cli, cmd string) (*session, error) {
 	if f.threads < 0 {
 		return nil, usageError(cmd, "--threads must not be negative")
 	}
+	if f.shardCount != 0 && f.shard != "auto" {
+		return nil, usageError(cmd, "--shard-count goes with --shard auto")
+	}
 	shard, err := parseShard(cmd, f.shard)
 	if f.shard == "auto" {
 		getenv := f.getenv

@@ -40,6 +40,9 @@ func autoShard(cmd string, getenv func(string) string, count int) (results.Shard
 			return results.Shard{}, usageError(cmd, "--shard auto: %s=%q is not a number", e.index, iv)
 		}
 		n := count
+		if n > 0 && e.count != "" && getenv(e.count) != "" && getenv(e.count) != strconv.Itoa(n) {
+			return results.Shard{}, usageError(cmd, "--shard auto: --shard-count %d disagrees with %s=%s; drop the flag or fix the variable", n, e.count, getenv(e.count))
+		}
 		if n == 0 {
 			src := e.count
 			if src == "" {
