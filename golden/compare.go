@@ -86,7 +86,11 @@ func Compare(s *suites.Suite, r *results.Results, dir string, opts Options) (*Ve
 		if !ok || s.Probe(name) != nil {
 			continue
 		}
-		pv := &ProbeVerdict{Name: name, Outcome: Missing, Metrics: []*MetricVerdict{},
+		kind := ""
+		if g, err := ReadFile(filepath.Join(dir, e.Name())); err == nil {
+			kind = g.Kind
+		}
+		pv := &ProbeVerdict{Name: name, Kind: kind, Outcome: Missing, Metrics: []*MetricVerdict{},
 			Note: fmt.Sprintf("%s has a golden file but the suite has no such probe; remove the file in an approved update if the probe was dropped", filepath.Join(dir, e.Name()))}
 		v.Probes = append(v.Probes, pv)
 		v.Outcome = Worse(v.Outcome, Missing)

@@ -11,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"syscall"
+	"time"
 )
 
 // PendingFile is the journal of a committed update whose renames may not all
@@ -19,6 +20,9 @@ const (
 	PendingFile = ".update-pending"
 	LockFile    = ".update-lock"
 	tempPrefix  = ".golden-"
+	// lockTempPrefix names a lock being written (then the writer's pid): not
+	// a stray that removeStrays may delete, unless its process is gone.
+	lockTempPrefix = ".update-lock-tmp-"
 )
 
 type renaming struct{ tmp, dst string }
@@ -65,8 +69,41 @@ func syncDir(dir string) error {
 // Recover finishes an update that was interrupted after it committed (its
 // journal exists): the remaining renames are done and the journal removed.
 // Without a journal it removes temporary files an interrupted update left.
-// It is called by every golden operation; running it twice is harmless.
+// It takes the directory's lock (waiting up to LockWait for a running
+// update), so it never races an update; every golden operation calls it, and
+// running it twice is harmless. A missing directory is fine.
 func Recover(dir string) error {
+	if _, err := os.Stat(dir); errors.Is(err, fs.ErrNotExist) {
+		return nil
+	}
+	unlock, err := lockWait(dir, LockWait)
+	if err != nil {
+		if errors.Is(err, fs.ErrPermission) {
+			return nil // a read-only directory: nothing to finish or clean here
+		}
+		return err
+	}
+	defer unlock()
+	return recoverLocked(dir)
+}
+
+// LockWait is how long an operation waits for a running update.
+const LockWait = 30 * time.Second
+
+// lockWait takes the lock, polling while a live process holds it.
+func lockWait(dir string, wait time.Duration) (func(), error) {
+	deadline := time.Now().Add(wait)
+	for {
+		unlock, err := lock(dir)
+		if err == nil || !errors.Is(err, errLocked) || time.Now().After(deadline) {
+			return unlock, err
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+}
+
+// recoverLocked is Recover with the lock held.
+func recoverLocked(dir string) error {
 	path := filepath.Join(dir, PendingFile)
 	data, err := os.ReadFile(path)
 	if errors.Is(err, fs.ErrNotExist) {
@@ -85,18 +122,15 @@ func Recover(dir string) error {
 		if err != nil || strings.ContainsAny(tmp+dst, `/\`) {
 			return fmt.Errorf("%s:%d: damaged journal; inspect the golden directory by hand", path, n)
 		}
-		src := filepath.Join(dir, tmp)
-		if _, err := os.Stat(src); errors.Is(err, fs.ErrNotExist) {
-			continue // renamed before the interruption
-		}
-		if err := os.Rename(src, filepath.Join(dir, dst)); err != nil {
+		err = os.Rename(filepath.Join(dir, tmp), filepath.Join(dir, dst))
+		if err != nil && !errors.Is(err, fs.ErrNotExist) { // not found: renamed before the interruption
 			return fmt.Errorf("finishing an interrupted golden update: %w", err)
 		}
 	}
 	if err := syncDir(dir); err != nil {
 		return err
 	}
-	if err := os.Remove(path); err != nil {
+	if err := os.Remove(path); err != nil && !errors.Is(err, fs.ErrNotExist) {
 		return fmt.Errorf("finishing an interrupted golden update: %w", err)
 	}
 	if err := syncDir(dir); err != nil {
@@ -105,7 +139,8 @@ func Recover(dir string) error {
 	return removeStrays(dir)
 }
 
-// removeStrays deletes temporaries of updates that never committed.
+// removeStrays deletes temporaries of updates that never committed (the
+// lock is held, so none belongs to a running update).
 func removeStrays(dir string) error {
 	entries, err := os.ReadDir(dir)
 	if errors.Is(err, fs.ErrNotExist) {
@@ -114,27 +149,39 @@ func removeStrays(dir string) error {
 	if err != nil {
 		return err
 	}
-	if _, err := os.Stat(filepath.Join(dir, LockFile)); err == nil && !staleLock(dir) {
-		return nil // an update is running: its temporaries are not strays
-	}
 	for _, e := range entries {
-		if strings.HasPrefix(e.Name(), tempPrefix) {
-			os.Remove(filepath.Join(dir, e.Name()))
+		name := e.Name()
+		switch {
+		case strings.HasPrefix(name, tempPrefix):
+			os.Remove(filepath.Join(dir, name))
+		case strings.HasPrefix(name, lockTempPrefix):
+			pidText, _, _ := strings.Cut(strings.TrimPrefix(name, lockTempPrefix), "-")
+			if pid, err := strconv.Atoi(pidText); err == nil && syscall.Kill(pid, 0) == syscall.ESRCH {
+				os.Remove(filepath.Join(dir, name)) // left by a process killed while locking
+			}
 		}
 	}
 	return nil
 }
 
+var errLocked = errors.New("another golden update is running")
+
 // lock takes the directory's update lock: a file holding the owner's pid,
-// created exclusively. A lock whose process is gone (a killed update) is
-// taken over.
+// written to a temporary file first and then hard-linked into place, which
+// fails when the lock exists; so the lock is never seen without its pid. A
+// lock whose process is gone (a killed update) is taken over.
 func lock(dir string) (func(), error) {
 	path := filepath.Join(dir, LockFile)
+	tmp, err := os.CreateTemp(dir, fmt.Sprintf("%s%d-*", lockTempPrefix, os.Getpid()))
+	if err != nil {
+		return nil, fmt.Errorf("locking the golden directory: %w", err)
+	}
+	fmt.Fprintf(tmp, "%d\n", os.Getpid())
+	tmp.Close()
+	defer os.Remove(tmp.Name())
 	for attempt := 0; attempt < 2; attempt++ {
-		f, err := os.OpenFile(path, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o644)
+		err := os.Link(tmp.Name(), path)
 		if err == nil {
-			fmt.Fprintf(f, "%d\n", os.Getpid())
-			f.Close()
 			return func() { os.Remove(path) }, nil
 		}
 		if !errors.Is(err, fs.ErrExist) {
@@ -142,14 +189,15 @@ func lock(dir string) (func(), error) {
 		}
 		if !staleLock(dir) {
 			b, _ := os.ReadFile(path)
-			return nil, fmt.Errorf("another golden update is running on %s (lock %s held by process %s); wait for it, or remove the lock if no such process exists", dir, path, strings.TrimSpace(string(b)))
+			return nil, fmt.Errorf("%w on %s (lock %s held by process %s); wait for it, or remove the lock if no such process exists", errLocked, dir, path, strings.TrimSpace(string(b)))
 		}
 		os.Remove(path)
 	}
 	return nil, fmt.Errorf("could not take the lock %s", path)
 }
 
-// staleLock reports whether the lock file names a process that no longer runs.
+// staleLock reports whether the lock file names a process that no longer
+// runs (or names none: locks are written whole, so that is damage).
 func staleLock(dir string) bool {
 	b, err := os.ReadFile(filepath.Join(dir, LockFile))
 	if err != nil {
@@ -157,7 +205,7 @@ func staleLock(dir string) bool {
 	}
 	pid, err := strconv.Atoi(strings.TrimSpace(string(b)))
 	if err != nil || pid <= 0 {
-		return len(b) > 0 // a lock being written has no pid yet; an unreadable one is stale
+		return true
 	}
 	return syscall.Kill(pid, 0) == syscall.ESRCH
 }

@@ -194,7 +194,7 @@ func (p *Plan) Apply() (err error) {
 		return err
 	}
 	defer unlock()
-	if err := Recover(p.dir); err != nil {
+	if err := recoverLocked(p.dir); err != nil {
 		return err
 	}
 	for _, f := range p.Files {
@@ -251,5 +251,5 @@ func (p *Plan) Apply() (err error) {
 	}
 	// From here the update is committed: a crash is rolled forward.
 	ready = nil
-	return Recover(p.dir)
+	return recoverLocked(p.dir)
 }

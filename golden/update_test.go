@@ -1,6 +1,7 @@
 package golden
 
 import (
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -434,10 +435,13 @@ func TestConcurrentUpdatesAreRefused(t *testing.T) {
 	s := twoProbeSuite(t)
 	dir := filepath.Join(t.TempDir(), "golden")
 	require.NoError(t, os.MkdirAll(dir, 0o755))
-	unlock, err := lock(dir)
-	require.NoError(t, err)
 	plan, err := PlanUpdate(updateOpts(dir, s, twoProbeRun(t, s, 8)))
 	require.NoError(t, err)
+	unlock, err := lock(dir)
+	require.NoError(t, err)
+	b, err := os.ReadFile(filepath.Join(dir, LockFile))
+	require.NoError(t, err)
+	require.Equal(t, fmt.Sprintf("%d\n", os.Getpid()), string(b), "the lock is never seen without its pid")
 	err = plan.Apply()
 	require.ErrorContains(t, err, "another golden update is running")
 	unlock()

@@ -208,10 +208,16 @@ func LoadVerdict(path string) (*Verdict, error) {
 // DecodeVerdict parses verdict JSON read from file.
 func DecodeVerdict(file string, data []byte) (*Verdict, error) {
 	var head struct {
-		Schema *int `json:"schema"`
+		Schema  *int            `json:"schema"`
+		Outcome json.RawMessage `json:"outcome"`
+		Shard   json.RawMessage `json:"shard"`
+		Base    json.RawMessage `json:"base"`
 	}
 	if err := json.Unmarshal(data, &head); err != nil {
 		return nil, fmt.Errorf("%s: not verdict JSON (truncated or corrupt?): %v", file, err)
+	}
+	if head.Outcome == nil && head.Shard != nil && head.Schema != nil {
+		return nil, fmt.Errorf("%s: this is a results file (from 'run --results'), not a verdict; gate it with 'sparsegate compare --results %s --golden DIR', or write a verdict with 'run --json'", file, file)
 	}
 	if head.Schema == nil {
 		return nil, fmt.Errorf("%s: no schema field; this is not a sparsegate verdict file", file)

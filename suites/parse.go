@@ -102,20 +102,37 @@ func Parse(file string, data []byte, fsys fs.FS, check func(rel string) error) (
 		def, _ := json.Marshal(pr.definition())
 		ph.Write(def)
 		for _, f := range pr.DataFiles() {
-			b, err := fs.ReadFile(fsys, f)
-			if err != nil {
+			// Streamed: a data file is hashed without being held in memory.
+			if err := hashFile(fsys, f, ph, h); err != nil {
 				return nil, &Error{File: file, Line: pr.Line, Col: pr.Col, Msg: fmt.Sprintf("probe %q: reading %s: %v", pr.Name, f, err)}
 			}
-			fmt.Fprintf(ph, "\n%s %d\n", f, len(b))
-			ph.Write(b)
-			fmt.Fprintf(h, "%s %d\n", f, len(b))
-			h.Write(b)
 		}
 		pr.Hash = hex.EncodeToString(ph.Sum(nil))
 	}
 	s.Hash = hex.EncodeToString(h.Sum(nil))
 	s.File, s.FS = file, fsys
 	return s, nil
+}
+
+// hashFile writes "\nNAME SIZE\n" and the file's bytes to the probe hash
+// and "NAME SIZE\n" and the bytes to the suite hash, streaming.
+func hashFile(fsys fs.FS, name string, probe, suite io.Writer) error {
+	f, err := fsys.Open(name)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(probe, "\n%s %d\n", name, st.Size())
+	fmt.Fprintf(suite, "%s %d\n", name, st.Size())
+	n, err := io.Copy(io.MultiWriter(probe, suite), f)
+	if err == nil && n != st.Size() {
+		err = fmt.Errorf("the file changed size while it was read (%d of %d bytes)", n, st.Size())
+	}
+	return err
 }
 
 // definition is what a probe's hash covers: everything that changes what it

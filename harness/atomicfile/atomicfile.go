@@ -16,6 +16,11 @@ import (
 // Write replaces path with what fill writes. The directory must exist. The
 // file gets mode 0644.
 func Write(path string, fill func(w io.Writer) error) (err error) {
+	// A rename would replace a device, a directory or a link's target's
+	// link: refuse anything but a regular file at the target.
+	if st, err := os.Lstat(path); err == nil && !st.Mode().IsRegular() {
+		return fmt.Errorf("write %s: it exists and is not a regular file (%s); choose another output path or remove whatever is in the way", path, st.Mode().Type())
+	}
 	dir := filepath.Dir(path)
 	tmp, err := os.CreateTemp(dir, "."+filepath.Base(path)+".tmp-*")
 	if err != nil {

@@ -50,8 +50,24 @@ func TestWriteOverADirectoryFailsCleanly(t *testing.T) {
 	target := filepath.Join(dir, "taken")
 	require.NoError(t, os.MkdirAll(filepath.Join(target, "inside"), 0o755))
 	err := WriteFile(target, []byte("x"))
-	require.ErrorContains(t, err, "remove whatever is in the way")
+	require.ErrorContains(t, err, "is not a regular file")
 	entries, err := os.ReadDir(dir)
 	require.NoError(t, err)
 	require.Len(t, entries, 1)
+}
+
+// A target that is not a regular file (here a directory; a device or a
+// symbolic link is refused the same way) is left alone.
+func TestRefusesNonRegularTargets(t *testing.T) {
+	dir := t.TempDir()
+	target := filepath.Join(dir, "out")
+	require.NoError(t, os.Mkdir(target, 0o755))
+	err := WriteFile(target, []byte("x"))
+	require.ErrorContains(t, err, "is not a regular file")
+	link := filepath.Join(dir, "link")
+	require.NoError(t, os.Symlink(filepath.Join(dir, "elsewhere"), link))
+	require.ErrorContains(t, WriteFile(link, []byte("x")), "is not a regular file")
+	st, err := os.Lstat(link)
+	require.NoError(t, err)
+	require.NotZero(t, st.Mode()&os.ModeSymlink, "the link is still a link")
 }

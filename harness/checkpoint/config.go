@@ -147,6 +147,10 @@ func ParseConfig(b []byte) (*Config, error) {
 	if t := bytes.TrimLeft(b, " \t\r\n"); len(t) > 0 && t[0] != '{' {
 		return nil, errors.New("config.json must hold a JSON object ({...}) of model settings")
 	}
+	if key, off, dup := jsonpos.DuplicateKey(b); dup {
+		line, col := jsonpos.LineCol(b, off)
+		return nil, fmt.Errorf("%d:%d: field %q appears twice; JSON keeps only the last, so delete the one that is wrong", line, col, key)
+	}
 	var r rawConfig
 	if err := json.Unmarshal(b, &r); err != nil {
 		var se *json.SyntaxError

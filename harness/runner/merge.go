@@ -4,6 +4,7 @@ import (
 	"cmp"
 	"fmt"
 	"slices"
+	"strings"
 
 	"sparsegate/harness/results"
 )
@@ -36,7 +37,13 @@ func Merge(parts []*results.Results) (*results.Results, error) {
 		}
 	}
 	if len(seen) != n {
-		return nil, inputErr("%d of %d shards given; merge needs all of them", len(seen), n)
+		var missing []string
+		for i := 1; i <= n; i++ {
+			if !seen[i] {
+				missing = append(missing, fmt.Sprintf("%d/%d", i, n))
+			}
+		}
+		return nil, inputErr("%d of %d shards given; merge needs all of them (missing: %s)", len(seen), n, strings.Join(missing, ", "))
 	}
 	out := *parts[0]
 	out.Shard = results.Shard{Index: 1, Count: 1}

@@ -3,6 +3,7 @@ package runner
 import (
 	"bytes"
 	"fmt"
+	"io"
 	"io/fs"
 	"unicode/utf8"
 
@@ -122,12 +123,27 @@ func fitsContext(pp *prepared, m *engine.Model, where string) error {
 	return nil
 }
 
+// MaxTextBytes caps a text probe's file when max_bytes is not set.
+const MaxTextBytes = 256 << 20
+
 // readText reads a probe's text, cut to maxBytes (back to a line end) when
 // maxBytes > 0; it must be non-empty UTF-8.
 func readText(fsys fs.FS, file string, maxBytes int) ([]byte, error) {
-	b, err := fs.ReadFile(fsys, file)
+	f, err := fsys.Open(file)
 	if err != nil {
 		return nil, fmt.Errorf("reading %s: %v", file, err)
+	}
+	defer f.Close()
+	limit := int64(MaxTextBytes) + 1
+	if maxBytes > 0 {
+		limit = int64(maxBytes) + 1 // one more, to know whether to cut
+	}
+	b, err := io.ReadAll(io.LimitReader(f, limit))
+	if err != nil {
+		return nil, fmt.Errorf("reading %s: %v", file, err)
+	}
+	if maxBytes == 0 && len(b) > MaxTextBytes {
+		return nil, fmt.Errorf("%s is larger than %d bytes; set max_bytes to score a prefix of it", file, MaxTextBytes)
 	}
 	if maxBytes > 0 && len(b) > maxBytes {
 		b = b[:maxBytes]

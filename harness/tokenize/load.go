@@ -90,7 +90,12 @@ func build(spec *loadSpec, cfg *config) (*Tokenizer, error) {
 		bos: -1, eos: -1, pad: -1, unk: -1}
 	size := len(spec.vocab)
 	seen := make(map[int]bool, len(spec.added))
-	for _, a := range spec.added {
+	for i, a := range spec.added {
+		// Added tokens extend the vocabulary; an id far past it would make
+		// the tables huge from a tiny file.
+		if a.id < 0 || a.id >= len(spec.vocab)+len(spec.added) {
+			return nil, errAt(spec.vocabFile, fmt.Sprintf("added_tokens[%d]", i), "id %d of %q is beyond the vocabulary of %d tokens and %d added ones; added tokens take the ids right after the vocabulary", a.id, a.content, len(spec.vocab), len(spec.added))
+		}
 		if seen[a.id] {
 			continue // the same token listed twice (tokenizer.json and tokenizer_config.json)
 		}
