@@ -3,6 +3,7 @@ package main_test
 import (
 	"bytes"
 	"fmt"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -65,8 +66,9 @@ probes:
 // TestDeterminismMatrix runs one suite on a sparse candidate of the demo
 // model under --threads 1, 2 and 8, GOMAXPROCS=1 and 2, a repeat of the
 // default, and as 3 shards merged; the Results JSON and the verdict JSON of
-// every variant (wall times zeroed) must equal the first's byte for byte:
-// 7 variants, 12 comparisons.
+// every variant (wall times zeroed) must equal the first's byte for byte,
+// and so must a binary built with -tags noasm (the pure-Go kernels): 8
+// variants, 14 comparisons.
 func TestDeterminismMatrix(t *testing.T) {
 	f := fixture(t)
 	dir := t.TempDir()
@@ -107,6 +109,26 @@ func TestDeterminismMatrix(t *testing.T) {
 	}
 	res, v := run("repeat", nil)
 	add("a second default run", res, v)
+
+	// The pure-Go kernel path: a binary built with -tags noasm. The assembly
+	// computes the same ascending chains of rounded products as the Go
+	// twins, so the two paths agree to the bit, not just within tolerance.
+	noasm := filepath.Join(dir, "sparsegate-noasm")
+	build := exec.Command("go", "build", "-tags", "noasm", "-o", noasm, "./cmd/sparsegate")
+	build.Dir = "../.."
+	if out, err := build.CombinedOutput(); err != nil {
+		t.Fatalf("go build -tags noasm: %v\n%s", err, out)
+	}
+	{
+		args := []string{"run", "--suite", suite, "--candidate", f.build, "--no-cache", "--golden", g,
+			"--results", "noasm.json", "--json", "noasm.verdict.json"}
+		cmd := exec.Command(noasm, args...)
+		cmd.Dir = dir
+		if out, err := cmd.CombinedOutput(); err != nil {
+			t.Fatalf("noasm run: %v\n%s", err, out)
+		}
+		add("the noasm (pure Go) kernels", readBytes(t, filepath.Join(dir, "noasm.json")), readBytes(t, filepath.Join(dir, "noasm.verdict.json")))
+	}
 
 	var shards []string
 	for i := 1; i <= 3; i++ {
