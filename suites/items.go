@@ -128,7 +128,7 @@ func readLine(br *bufio.Reader) ([]byte, error) {
 func parseItem(b []byte, kind string) (Item, error) {
 	var it Item
 	if !utf8Valid(b) {
-		return it, fmt.Errorf("byte %d of the line is not valid UTF-8; save the file as UTF-8", invalidAt(b)+1)
+		return it, fmt.Errorf("byte %d of the line is not valid UTF-8; save the file as UTF-8", InvalidUTF8At(b)+1)
 	}
 	dec := json.NewDecoder(bytes.NewReader(b))
 	dec.DisallowUnknownFields()

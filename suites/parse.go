@@ -179,7 +179,7 @@ var nameRE = regexp.MustCompile(`^[a-z0-9][a-z0-9._-]{0,63}$`)
 func (p *parser) parse(data []byte) *Suite {
 	s := &Suite{}
 	if !utf8Valid(data) {
-		off := invalidAt(data)
+		off := InvalidUTF8At(data)
 		line := 1 + bytes.Count(data[:off], []byte("\n"))
 		col := off - bytes.LastIndexByte(data[:off], '\n')
 		p.errorf(&yaml.Node{Line: line, Column: col}, "the file is not valid UTF-8 (byte offset %d); save it as UTF-8", off)

@@ -155,21 +155,11 @@ func readText(fsys fs.FS, file string, maxBytes int) ([]byte, error) {
 		return nil, fmt.Errorf("%s is empty; a text probe needs text to score", file)
 	}
 	if !utf8.Valid(b) {
-		return nil, fmt.Errorf("%s is not valid UTF-8 (first bad byte at offset %d); save it as UTF-8", file, badUTF8(b))
+		return nil, fmt.Errorf("%s is not valid UTF-8 (first bad byte at offset %d); save it as UTF-8", file, suites.InvalidUTF8At(b))
 	}
 	return b, nil
 }
 
-func badUTF8(b []byte) int {
-	for i := 0; i < len(b); {
-		r, n := utf8.DecodeRune(b[i:])
-		if r == utf8.RuneError && n <= 1 {
-			return i
-		}
-		i += n
-	}
-	return -1
-}
 
 // windows lays out sliding windows as engine.SlidingLogProbs does: windows
 // of at most win tokens every stride tokens; each target is scored once, in
