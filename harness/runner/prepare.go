@@ -160,7 +160,6 @@ func readText(fsys fs.FS, file string, maxBytes int) ([]byte, error) {
 	return b, nil
 }
 
-
 // windows lays out sliding windows as engine.SlidingLogProbs does: windows
 // of at most win tokens every stride tokens; each target is scored once, in
 // the first window holding it with at least one token of context.
