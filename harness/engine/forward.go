@@ -591,6 +591,7 @@ func (m *Model) mlp(st *state, li int) {
 	kept := 0
 	if st.hook != nil {
 		idx = make([][]int32, R)
+		toks := make([]*Token, R)
 		for r := 0; r < R; r++ {
 			tok := m.token(st, li, r)
 			h := tok.Input
@@ -599,7 +600,21 @@ func (m *Model) mlp(st *state, li int) {
 				m.mlpHidden(act, h, L, nil)
 				return act
 			}
-			if sel := st.hook.Neurons(tok); sel != nil {
+			toks[r] = tok
+		}
+		bh, batched := st.hook.(BatchHook)
+		var sels [][]int32
+		if batched && R > 1 {
+			sels = bh.NeuronsBatch(toks)
+		}
+		for r, tok := range toks {
+			var sel []int32
+			if sels != nil {
+				sel = sels[r]
+			} else {
+				sel = st.hook.Neurons(tok)
+			}
+			if sel != nil {
 				idx[r] = append(make([]int32, 0, len(sel)), sel...) // the hook may reuse its slice; empty keeps none
 				kept += len(sel)
 			} else {

@@ -45,3 +45,16 @@ func (t *Token) Dense() []float32 {
 	}
 	return t.cache
 }
+
+// A BatchHook is a Hook that can also choose the MLP neurons of a whole
+// batch of tokens at once (a predictor scored with one matrix product for
+// every row instead of one per token). For batches of more than one row the
+// engine calls NeuronsBatch instead of Neurons; its results must equal what
+// Neurons would return token by token, in the same order (which keeps any
+// statistics the hook gathers identical too).
+type BatchHook interface {
+	Hook
+	// NeuronsBatch returns, for each token of one layer, what Neurons would
+	// return; the slices stay valid until the next call.
+	NeuronsBatch(tokens []*Token) [][]int32
+}

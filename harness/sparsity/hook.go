@@ -28,10 +28,11 @@ type HookOptions struct {
 func (b *Build) Hook(opts HookOptions) engine.Hook {
 	cfg := b.Base.Config
 	h := &hook{
-		sel:    make([][2]selector, cfg.Layers),
-		stats:  opts.Stats,
-		recall: opts.Recall,
-		none:   make([]int32, 0),
+		threads: b.Base.Threads(),
+		sel:     make([][2]selector, cfg.Layers),
+		stats:   opts.Stats,
+		recall:  opts.Recall,
+		none:    make([]int32, 0),
 	}
 	width := max(cfg.FFN, cfg.Heads)
 	h.out[0], h.out[1] = make([]int32, 0, width), make([]int32, 0, width)
@@ -70,9 +71,10 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 
 // hook is the engine.Hook of a build.
 type hook struct {
-	sel    [][2]selector // by layer, mlp then attention
-	stats  *Stats
-	recall bool
+	threads int           // kernel workers for batched predictor scoring
+	sel     [][2]selector // by layer, mlp then attention
+	stats   *Stats
+	recall  bool
 
 	// The engine may keep a returned list until the call for the next token
 	// returns, so selections alternate between two buffers.
@@ -261,3 +263,49 @@ func intersectCount(a, b []int32) int {
 	}
 	return n
 }
+
+// NeuronsBatch implements engine.BatchHook: a predictor rule scores every
+// row with two batched products (the same bits as row by row, by the
+// kernels' contract) and then picks each row's top k; other rules go token
+// by token. Results and statistics equal those of Neurons in row order.
+func (h *hook) NeuronsBatch(toks []*engine.Token) [][]int32 {
+	out := make([][]int32, len(toks))
+	if len(toks) == 0 {
+		return out
+	}
+	s := &h.sel[toks[0].Layer][0]
+	if s.dense || s.rule.Mode != PredictorMode {
+		for i, t := range toks {
+			if sel := h.Neurons(t); sel != nil {
+				out[i] = append(make([]int32, 0, len(sel)), sel...)
+			}
+		}
+		return out
+	}
+	p := s.pred.p
+	R := len(toks)
+	x := make([]float32, R*p.In)
+	for i, t := range toks {
+		in := t.Input
+		if s.rule.Input == InputPrevious {
+			in = t.PrevLayerInput
+		}
+		copy(x[i*p.In:(i+1)*p.In], in)
+	}
+	hidden := make([]float32, R*p.Rank)
+	kernels.Linear(hidden, x, R, &s.pred.w1, p.B1, h.threads)
+	kernels.ReLU(hidden)
+	scores := make([]float32, R*p.Out)
+	kernels.Linear(scores, hidden, R, &s.pred.w2, p.B2, h.threads)
+	for i, t := range toks {
+		kept := topKInto(make([]int32, 0, s.rule.K), h.order, scores[i*p.Out:(i+1)*p.Out], s.rule.K)
+		h.record(s, t.Dense, kept)
+		if len(kept) == 0 {
+			kept = h.none
+		}
+		out[i] = kept
+	}
+	return out
+}
+
+var _ engine.BatchHook = (*hook)(nil)

@@ -510,3 +510,42 @@ func (c *countingHook) Neurons(t *engine.Token) []int32 {
 	u := Unit{t.Layer, MLP}
 	return c.count(u, c.pick(u, t))
 }
+
+// A batch scores the predictor rows with one product (NeuronsBatch) and a
+// decode scores them token by token (Neurons): the same selections, the same
+// bits and the same statistics.
+func TestBatchedPredictorEqualsTokenByToken(t *testing.T) {
+	fx := newFixture(t, checkpoint.OPT, nil)
+	rules := map[Unit]Rule{
+		{0, MLP}: {Mode: PredictorMode, K: 20, Rank: 6, Input: InputSelf},
+		{1, MLP}: {Mode: PredictorMode, K: 9, Rank: 5, Input: InputPrevious},
+	}
+	preds := map[Unit]*Predictor{{0, MLP}: randomPredictor(32, 6, 64, 7), {1, MLP}: randomPredictor(32, 5, 64, 8)}
+	rule := func(u Unit) Rule {
+		if r, ok := rules[u]; ok {
+			return r
+		}
+		return Rule{Mode: Dense}
+	}
+	b := fx.open(fx.write(fx.manifest(rule), preds))
+	toks := lpTokens(24, 3)
+	var sb, sd Stats
+	batch, err := fx.base.Forward([]*engine.Session{fx.base.NewSession()}, [][]int{toks}, b.Hook(HookOptions{Stats: &sb, Recall: true}))
+	require.NoError(t, err)
+	hd := b.Hook(HookOptions{Stats: &sd, Recall: true})
+	s := fx.base.NewSession()
+	var decode []float32
+	for _, tok := range toks {
+		h, err := fx.base.Forward([]*engine.Session{s}, [][]int{{tok}}, hd)
+		require.NoError(t, err)
+		decode = append(decode, h...)
+	}
+	require.Equal(t, batch, decode)
+	for _, u := range []Unit{{0, MLP}, {1, MLP}} {
+		a, _ := sb.Unit(u)
+		d, _ := sd.Unit(u)
+		require.Equal(t, d, a, "%s statistics", u)
+		require.Equal(t, int64(len(toks)), a.Tokens)
+		require.Equal(t, int64(len(toks))*int64(rules[u].K), a.Kept)
+	}
+}
