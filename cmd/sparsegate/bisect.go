@@ -354,8 +354,8 @@ func runBisect(c *cli, args []string) error {
 		probe, m := headline(v)
 		line := fmt.Sprintf("  %s mask alone: %s", u.units[i], describeMetric(probe, m))
 		if m != nil && m.Golden != nil && *m.Golden != 0 {
-			line = fmt.Sprintf("  %s mask alone %s %s %s by %.2g%% (%.5g → %.5g; %s)", u.units[i], moveWord(m), probe, m.Metric,
-				100*math.Abs(*m.Candidate-*m.Golden)/math.Abs(*m.Golden), *m.Golden, *m.Candidate, m.Outcome)
+			line = fmt.Sprintf("  %s mask alone %s %s %s by %.2g%% (%.5g → %.5g; tolerance %.2g%%: %s)", u.units[i], moveWord(m), probe, m.Metric,
+				100*math.Abs(*m.Candidate-*m.Golden)/math.Abs(*m.Golden), *m.Golden, *m.Candidate, 100*m.Bound/math.Abs(*m.Golden), m.Outcome)
 			sens = append(sens, golden.Sensitivity{Probe: probe, Metric: m.Metric, Layer: u.units[i].Layer, Component: string(u.units[i].Component),
 				Mode: "only-sparse", Value: *m.Candidate, Delta: *m.Candidate - *m.Golden})
 		}
