@@ -3,6 +3,7 @@ package sparsity
 import (
 	"math"
 	"slices"
+	"sync"
 
 	"sparsegate/harness/engine"
 	"sparsegate/harness/kernels"
@@ -297,13 +298,26 @@ func (h *hook) NeuronsBatch(toks []*engine.Token) [][]int32 {
 	kernels.ReLU(hidden)
 	scores := make([]float32, R*p.Out)
 	kernels.Linear(scores, hidden, R, &s.pred.w2, p.B2, h.threads)
+	// Each row's top k is independent: split the rows over the workers
+	// (each with its own scratch), then record in row order.
+	workers := max(1, min(h.threads, R/8))
+	var wg sync.WaitGroup
+	for w := range workers {
+		wg.Add(1)
+		go func(r0, r1 int) {
+			defer wg.Done()
+			order := make([]int32, p.Out)
+			for i := r0; i < r1; i++ {
+				out[i] = topKInto(make([]int32, 0, s.rule.K), order, scores[i*p.Out:(i+1)*p.Out], s.rule.K)
+			}
+		}(w*R/workers, (w+1)*R/workers)
+	}
+	wg.Wait()
 	for i, t := range toks {
-		kept := topKInto(make([]int32, 0, s.rule.K), h.order, scores[i*p.Out:(i+1)*p.Out], s.rule.K)
-		h.record(s, t.Dense, kept)
-		if len(kept) == 0 {
-			kept = h.none
+		h.record(s, t.Dense, out[i])
+		if len(out[i]) == 0 {
+			out[i] = h.none
 		}
-		out[i] = kept
 	}
 	return out
 }
