@@ -243,6 +243,19 @@ func Decode(file string, data []byte) (*Results, error) {
 		if p == nil {
 			return nil, fmt.Errorf("%s: probes[%d] is null", file, i)
 		}
+		// Empty lists are written as absent: read them the same way, so
+		// decode → encode → decode is a fixed point.
+		if len(p.Items) == 0 {
+			p.Items = nil
+		}
+		if len(p.Units) == 0 {
+			p.Units = nil
+		}
+		for j := range p.Items {
+			if len(p.Items[j].KL) == 0 {
+				p.Items[j].KL = nil
+			}
+		}
 	}
 	return &r, nil
 }
