@@ -20,7 +20,7 @@ func relClose(t *testing.T, want, got float64, sig int, what string) {
 // 86 disapprove/approve, 570 disapprove/disapprove), from A. Agresti,
 // Categorical Data Analysis (Wiley, 1990), pp. 350-354, which is also the
 // example in R's mcnemar.test documentation. Table from memory; the R outputs
-// below were checked against published R transcripts of that example.
+// below are what R prints for that example, as seen in public code that runs it.
 //
 // Derivation by hand, B = 150, C = 86, B + C = 236, B - C = 64:
 //
