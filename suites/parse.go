@@ -207,7 +207,7 @@ func (p *parser) parse(data []byte) *Suite {
 	if p.noAliases(root, 0) {
 		return s
 	}
-	fields := p.mapping(root, "the suite", []string{"format", "name", "about", "probes"}, []string{"format", "name", "probes"})
+	fields := p.mappingLabelled(root, "the suite", []string{"format", "name", "about", "probes"}, []string{"format", "name", "probes"})
 	if fields == nil {
 		return s
 	}
@@ -512,12 +512,8 @@ func (p *parser) gate(n *yaml.Node, label, kind string) []Tolerance {
 	return out
 }
 
-// mapping checks that n is a mapping with only allowed keys and the required
-// ones, and returns the values by key.
-func (p *parser) mapping(n *yaml.Node, label string, allowed, required []string) map[string]*yaml.Node {
-	return p.mappingLabelled(n, label, allowed, required)
-}
-
+// mappingLabelled checks that n is a mapping with only allowed keys and the
+// required ones, and returns the values by key; label names it in errors.
 func (p *parser) mappingLabelled(n *yaml.Node, label string, allowed, required []string) map[string]*yaml.Node {
 	if n.Kind != yaml.MappingNode {
 		p.errorf(n, "%s must be a mapping of fields (%s)", label, strings.Join(allowed, ", "))

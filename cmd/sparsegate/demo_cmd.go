@@ -131,7 +131,7 @@ func runDemo(c *cli, args []string) error {
 		ran = append(ran, cmdline)
 		var out bytes.Buffer
 		t0 := time.Now()
-		code := run(s.args, io.MultiWriter(c.stdout, &out), quietProgress{c.stderr})
+		code := run(s.args, io.MultiWriter(c.stdout, &out), c.stderr)
 		fmt.Fprintf(c.stdout, "(exit %d, %.1fs)\n", code, time.Since(t0).Seconds())
 		if code != s.want {
 			ok = false
@@ -156,11 +156,6 @@ func runDemo(c *cli, args []string) error {
 	}
 	return nil
 }
-
-// quietProgress passes a command's stderr through (progress and probe lines).
-type quietProgress struct{ w io.Writer }
-
-func (q quietProgress) Write(b []byte) (int, error) { return q.w.Write(b) }
 
 // breakLayer copies a build and cuts one layer's MLP budget to 8 neurons.
 func breakLayer(src, dst string, layer int) error {

@@ -6,6 +6,7 @@ import (
 	"io"
 	"os"
 	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 
@@ -160,7 +161,7 @@ func (f *runFlags) open(c *cli, cmd string) (*session, error) {
 		}
 	case s.cand != nil && s.cand.Build != nil:
 		s.base = runner.BaseOf(s.cand)
-	case s.cand == nil && slices0(suites.Builtin(), f.suite):
+	case s.cand == nil && slices.Contains(suites.Builtin(), f.suite):
 		root, cleanup, err := extractDemo()
 		if err != nil {
 			return nil, err
@@ -200,15 +201,6 @@ func (f *runFlags) open(c *cli, cmd string) (*session, error) {
 	}
 	ok = true
 	return s, nil
-}
-
-func slices0(list []string, s string) bool {
-	for _, v := range list {
-		if v == s {
-			return true
-		}
-	}
-	return false
 }
 
 func runRun(c *cli, args []string) error {

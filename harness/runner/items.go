@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"hash/fnv"
 	"math/rand/v2"
+	"slices"
 	"strings"
 
 	"sparsegate/harness/engine"
@@ -175,7 +176,7 @@ func (rc *runCtx) flips(pp *prepared, pr *results.Probe) error {
 	// once.
 	offset := 0 // the item's index in the unsharded concatenation
 	for _, p := range rc.s.Probes {
-		if !contains(names, p.Name) {
+		if !slices.Contains(names, p.Name) {
 			continue
 		}
 		name := p.Name

@@ -27,6 +27,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"slices"
 	"time"
 
 	"sparsegate/harness/engine"
@@ -156,7 +157,7 @@ func Run(s *suites.Suite, base, cand *Target, opts Options) (*results.Results, e
 		pr := &results.Probe{Name: p.Name, Kind: p.Kind, Hash: p.Hash, Metrics: []results.Metric{}}
 		start := opts.Now()
 		switch {
-		case len(opts.Probes) > 0 && !contains(opts.Probes, p.Name):
+		case len(opts.Probes) > 0 && !slices.Contains(opts.Probes, p.Name):
 			pr.Status, pr.Note = results.Skipped, "not selected"
 		default:
 			rc.runProbe(preps[i], pr)
@@ -187,21 +188,12 @@ func withSources(s *suites.Suite, sel []string) []string {
 			continue
 		}
 		for _, q := range s.Probes {
-			if (q.Kind == suites.Choice || q.Kind == suites.Generation) && (len(p.Of) == 0 || contains(p.Of, q.Name)) && !contains(out, q.Name) {
+			if (q.Kind == suites.Choice || q.Kind == suites.Generation) && (len(p.Of) == 0 || slices.Contains(p.Of, q.Name)) && !slices.Contains(out, q.Name) {
 				out = append(out, q.Name)
 			}
 		}
 	}
 	return out
-}
-
-func contains(list []string, s string) bool {
-	for _, v := range list {
-		if v == s {
-			return true
-		}
-	}
-	return false
 }
 
 func sameTokenizer(base, cand *Target) error {
