@@ -25,7 +25,7 @@ func LinearGather(y, x []float32, w *Mat, bias []float32, idx []int32) {
 		return
 	}
 	if !w.Transposed {
-		var buf [4 * gemvKC]float32
+		var buf [gemvBuf]float32
 		rowsDot(y, x, w, bias, buf[:], 0, idx)
 		return
 	}

@@ -23,7 +23,7 @@ func pickIdx(n, step int) []int32 {
 
 func TestLinearGatherMatchesLinear(t *testing.T) {
 	r := newRand(10)
-	for _, sh := range []struct{ in, out int }{{1, 1}, {7, 9}, {300, 70}, {600, 261}} {
+	for _, sh := range []struct{ in, out int }{{1, 1}, {7, 9}, {300, 70}, {600, 261}, {5, 40}, {64, 100}, {777, 90}} {
 		for _, dt := range allDTypes {
 			for _, tr := range []bool{false, true} {
 				for _, step := range []int{1, 3, 17} {

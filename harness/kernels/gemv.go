@@ -8,15 +8,15 @@ const (
 )
 
 // gemvRows computes y[j] = bias[j] + Σ_k x[k]·W[j][k] for an Out×In W by
-// streaming its rows: four rows at a time, each with its own single
-// accumulator running in ascending k.
+// streaming its rows: eight rows at a time (then four, then one), each with
+// its own single accumulator running in ascending k.
 func gemvRows(y, x []float32, w *Mat, bias []float32, threads int) {
 	nJobs := (w.Out + gemvRowsJob - 1) / gemvRowsJob
 	workers := workerCount(threads, nJobs, w.Out*w.In)
 	runJobs(nJobs, workers, func() func(int) {
 		var buf []float32
 		if w.DType != F32 {
-			buf = make([]float32, 4*gemvKC)
+			buf = make([]float32, gemvBuf)
 		}
 		return func(job int) {
 			j0 := job * gemvRowsJob
@@ -28,7 +28,10 @@ func gemvRows(y, x []float32, w *Mat, bias []float32, threads int) {
 
 // rowsDot sets out[r] = bias[row] + Σ_k x[k]·W[row][k] for the Out×In W,
 // where row = idx[r] when idx is non-nil and row0+r otherwise. buf is
-// conversion scratch of 4*gemvKC floats (unused for F32 weights).
+// conversion scratch of gemvBuf floats (unused for F32 weights). Groups of
+// eight rows go through dot8Rows (assembly where the CPU has it), the
+// remaining rows four and then one at a time; every path runs each row's
+// single accumulator in ascending k, so all give the same bits.
 func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int32) {
 	in := w.In
 	rowOf := func(r int) int {
@@ -38,6 +41,20 @@ func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int3
 		return row0 + r
 	}
 	r := 0
+	for ; r+8 <= len(out); r += 8 {
+		var offs [8]int
+		for q := range offs {
+			offs[q] = rowOf(r+q) * in
+		}
+		var acc [8]float32
+		dot8Rows(&acc, x, w, &offs, buf)
+		for q := range 8 {
+			if bias != nil {
+				acc[q] += bias[rowOf(r+q)]
+			}
+			out[r+q] = acc[q]
+		}
+	}
 	for ; r+4 <= len(out); r += 4 {
 		j0, j1, j2, j3 := rowOf(r), rowOf(r+1), rowOf(r+2), rowOf(r+3)
 		var acc [4]float32

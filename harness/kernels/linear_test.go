@@ -10,9 +10,13 @@ import (
 
 // linearShapes covers 1, odd sizes, sizes that are not multiples of the
 // register or cache blocks (k blocks of 256, column jobs of 128 and row jobs
-// of 64 inside the package), m = 1 and an empty input dimension.
+// of 64 inside the package), m = 1 and an empty input dimension. The m = 1
+// shapes also cover the GEMV's 8-row groups: In below, at and off a
+// multiple of 8 (and past two conversion segments of 512), Out with and
+// without a remainder of four and of one.
 var linearShapes = []struct{ m, in, out int }{
 	{1, 1, 1}, {1, 7, 5}, {1, 300, 70}, {1, 600, 260}, {1, 513, 3},
+	{1, 5, 17}, {1, 8, 8}, {1, 16, 24}, {1, 9, 13}, {1, 1031, 45}, {1, 64, 7},
 	{2, 3, 5}, {3, 256, 4}, {4, 257, 129}, {5, 31, 33}, {7, 600, 9},
 	{17, 64, 127}, {64, 128, 128}, {65, 255, 131}, {130, 300, 260},
 	{3, 0, 5}, {1, 0, 2},
@@ -51,22 +55,41 @@ func TestLinearMatchesReference(t *testing.T) {
 }
 
 // TestLinearRowIndependence checks that a row computed inside a many-row
-// product (blocked path) equals the same row computed alone (GEMV path).
+// product (blocked path) equals the same row computed alone (GEMV path, 8
+// rows at a time with assembly where the CPU has it) and the same outputs
+// gathered (LinearGather), for In below, at and off a multiple of 8 and Out
+// with every kind of remainder.
 func TestLinearRowIndependence(t *testing.T) {
 	r := newRand(2)
-	const m, in, out = 70, 290, 140
-	for _, dt := range allDTypes {
-		for _, tr := range []bool{false, true} {
-			w, _ := testMat(r, dt, out, in, tr)
-			x := randVec(r, m*in)
-			bias := randVec(r, out)
-			all := make([]float32, m*out)
-			kernels.Linear(all, x, m, w, bias, 2)
-			one := make([]float32, out)
-			for _, i := range []int{0, 1, 33, 63, 64, 69} {
-				kernels.Linear(one, x[i*in:(i+1)*in], 1, w, bias, 1)
-				if j := bitsEqual(one, all[i*out:(i+1)*out]); j >= 0 {
-					t.Fatalf("%v T%v row %d: alone y[%d] = %v, in batch %v", dt, tr, i, j, one[j], all[i*out+j])
+	shapes := []struct{ m, in, out int }{{70, 290, 140}, {9, 5, 19}, {12, 256, 64}, {5, 777, 45}, {3, 1030, 9}}
+	for _, sh := range shapes {
+		m, in, out := sh.m, sh.in, sh.out
+		for _, dt := range allDTypes {
+			for _, tr := range []bool{false, true} {
+				w, _ := testMat(r, dt, out, in, tr)
+				x := randVec(r, m*in)
+				bias := randVec(r, out)
+				all := make([]float32, m*out)
+				kernels.Linear(all, x, m, w, bias, 2)
+				one := make([]float32, out)
+				idx := pickIdx(out, 2)
+				kept := make([]float32, len(idx))
+				for _, i := range []int{0, 1, 33, 63, 64, 69} {
+					if i >= m {
+						continue
+					}
+					name := fmt.Sprintf("m%d in%d out%d %v T%v row %d", m, in, out, dt, tr, i)
+					xi := x[i*in : (i+1)*in]
+					kernels.Linear(one, xi, 1, w, bias, 1)
+					if j := bitsEqual(one, all[i*out:(i+1)*out]); j >= 0 {
+						t.Fatalf("%s: alone y[%d] = %v, in batch %v", name, j, one[j], all[i*out+j])
+					}
+					kernels.LinearGather(kept, xi, w, bias, idx)
+					for rr, j := range idx {
+						if math.Float32bits(kept[rr]) != math.Float32bits(all[i*out+int(j)]) {
+							t.Fatalf("%s: gathered y[%d] = %v, in batch %v", name, j, kept[rr], all[i*out+int(j)])
+						}
+					}
 				}
 			}
 		}

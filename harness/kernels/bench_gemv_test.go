@@ -1,0 +1,75 @@
+package kernels_test
+
+import (
+	"fmt"
+	"testing"
+
+	"sparsegate/harness/kernels"
+)
+
+// reportWeightGBs records the weight bytes read per iteration as GB/s.
+func reportWeightGBs(b *testing.B, bytes int) {
+	b.Helper()
+	b.ReportMetric(float64(bytes)*float64(b.N)/b.Elapsed().Seconds()/1e9, "GB/s")
+}
+
+// weightBytes is the stored size of rows×in weights of dtype dt.
+func weightBytes(dt kernels.DType, rows, in int) int {
+	if dt == kernels.F32 {
+		return 4 * rows * in
+	}
+	return 2 * rows * in
+}
+
+// logGEMVKernel prints which row-dot kernel weights of dtype dt run on.
+func logGEMVKernel(b *testing.B, dt kernels.DType) {
+	b.Helper()
+	b.Logf("%v weights: %s", dt, kernels.GEMVKernel(dt))
+}
+
+// gemvShapes are the Out×In projections of a 125M-parameter decoder with
+// width 768 and MLP width 3072: fc1, fc2 and the attention projections.
+var gemvShapes = []struct{ in, out int }{{768, 3072}, {3072, 768}, {768, 768}}
+
+// BenchmarkGEMVRows times the m == 1 row-dot path (Out×In storage) in one
+// goroutine, so that it measures the kernel rather than the scheduler.
+func BenchmarkGEMVRows(b *testing.B) {
+	for _, sh := range gemvShapes {
+		for _, dt := range allDTypes {
+			b.Run(fmt.Sprintf("%dto%d_%v", sh.in, sh.out, dt), func(b *testing.B) {
+				logGEMVKernel(b, dt)
+				w := benchMat(dt, sh.out, sh.in, false)
+				x := randVec(newRand(5), sh.in)
+				y := make([]float32, sh.out)
+				b.ResetTimer()
+				for range b.N {
+					kernels.Linear(y, x, 1, w, nil, 1)
+				}
+				reportWeightGBs(b, weightBytes(dt, sh.out, sh.in))
+			})
+		}
+	}
+}
+
+// BenchmarkGEMVGather times LinearGather over a 3072×768 up-projection with
+// every tenth row kept (307 rows, the sparse MLP's typical density).
+func BenchmarkGEMVGather(b *testing.B) {
+	const in, out = 768, 3072
+	var idx []int32
+	for j := 0; j < out; j += 10 {
+		idx = append(idx, int32(j))
+	}
+	for _, dt := range allDTypes {
+		b.Run(fmt.Sprintf("%dof%d_%v", len(idx), out, dt), func(b *testing.B) {
+			logGEMVKernel(b, dt)
+			w := benchMat(dt, out, in, false)
+			x := randVec(newRand(6), in)
+			y := make([]float32, len(idx))
+			b.ResetTimer()
+			for range b.N {
+				kernels.LinearGather(y, x, w, nil, idx)
+			}
+			reportWeightGBs(b, weightBytes(dt, len(idx), in))
+		})
+	}
+}

@@ -1,0 +1,85 @@
+//go:build amd64 && !noasm
+
+package kernels
+
+// dot8Rows advances acc[q] by Σ_k x[k]·W[k] over the stored row that starts
+// at element offs[q] of w's storage (Out×In layout, len(x) == In), in
+// ascending k, each product rounded to float32 before it is added. buf is
+// conversion scratch of at least gemvBuf floats. With AVX2 (and F16C for
+// binary16 weights) the blocks of eight k run in assembly, which converts
+// half-precision rows in registers; the last len(x) mod 8 k run in Go.
+// Every path gives dot8RowsGo's bits.
+func dot8Rows(acc *[8]float32, x []float32, w *Mat, offs *[8]int, buf []float32) {
+	n := len(x)
+	blocks := n &^ 7
+	if blocks == 0 || !gemvAsm(w.DType) {
+		dot8RowsGo(acc, x, w, offs, buf)
+		return
+	}
+	if w.DType == F32 {
+		var p [8]*float32
+		for q, off := range offs {
+			p[q] = &w.F32[off : off+n][0]
+		}
+		dot8F32AVX2(&p, &x[0], blocks, acc)
+		if blocks < n {
+			for q, off := range offs {
+				acc[q] = dotAcc(acc[q], x[blocks:], w.F32[off+blocks:off+n])
+			}
+		}
+		return
+	}
+	var p [8]*uint16
+	for q, off := range offs {
+		p[q] = &w.Half[off : off+n][0]
+	}
+	if w.DType == F16 {
+		dot8F16AVX2(&p, &x[0], blocks, acc)
+	} else {
+		dot8BF16AVX2(&p, &x[0], blocks, acc)
+	}
+	if blocks < n {
+		var t [8]float32
+		tail := t[:n-blocks]
+		for q, off := range offs {
+			w.convertRange(tail, off+blocks)
+			acc[q] = dotAcc(acc[q], x[blocks:], tail)
+		}
+	}
+}
+
+// gemvAsm reports whether this CPU runs the assembly 8-row kernel for
+// weights of dtype dt.
+func gemvAsm(dt DType) bool {
+	switch dt {
+	case F32, BF16:
+		return hasAVX2
+	case F16:
+		return hasAVX2 && hasF16C
+	}
+	return false
+}
+
+// gemvKernel names the row-dot (GEMV) kernel used for w's dtype.
+func gemvKernel(dt DType) string {
+	if gemvAsm(dt) {
+		return "avx2 8-row"
+	}
+	return "go 8-row"
+}
+
+// dot8F32AVX2 advances acc[q] by Σ_{k<n} x[k]·rows[q][k] in ascending k
+// (VMULPS then VADDPS per lane), n a positive multiple of 8 (dot8_amd64.s).
+//
+//go:noescape
+func dot8F32AVX2(rows *[8]*float32, x *float32, n int, acc *[8]float32)
+
+// dot8F16AVX2 is dot8F32AVX2 over binary16 rows, widened with VCVTPH2PS.
+//
+//go:noescape
+func dot8F16AVX2(rows *[8]*uint16, x *float32, n int, acc *[8]float32)
+
+// dot8BF16AVX2 is dot8F32AVX2 over bfloat16 rows, widened by a shift.
+//
+//go:noescape
+func dot8BF16AVX2(rows *[8]*uint16, x *float32, n int, acc *[8]float32)

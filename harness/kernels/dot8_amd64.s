@@ -1,0 +1,167 @@
+//go:build amd64 && !noasm
+
+#include "textflag.h"
+
+// Eight-row dot products, lanes = rows. Each kernel advances eight
+// accumulators acc[q] (lane q of Y15) over k < n, n a positive multiple of
+// 8, in ascending k: acc[q] = acc[q] + float32(x[k]·w_q[k]), the product
+// rounded by VMULPS and then added by VADDPS (never a fused multiply-add),
+// which is dotAcc's order and rounding lane by lane.
+//
+// Register use: AX, BX, DX, R8 … R12 hold the eight row starts (rows 0 … 7),
+// SI holds x, DI the element index k, CX the end n. Per block of eight k the
+// rows are brought into the split layout
+//
+//	A_i = [ w_i[k..k+3]   | w_{i+4}[k..k+3]   ]   (i = 0 … 3)
+//	B_i = [ w_i[k+4..k+7] | w_{i+4}[k+4..k+7] ]
+//
+// and each group of four is transposed inside its 128-bit lanes, which
+// leaves one vector per k holding w_0[k] … w_7[k] in lanes 0 … 7.
+
+// LOADROWS fills R8 … R12, AX, BX, DX with the eight row pointers at
+// rows+0(FP), SI with x, CX with n, zeroes DI and loads the accumulators.
+#define LOADROWS \
+	MOVQ    rows+0(FP), R13; \
+	MOVQ    0(R13), AX; \
+	MOVQ    8(R13), BX; \
+	MOVQ    16(R13), DX; \
+	MOVQ    24(R13), R8; \
+	MOVQ    32(R13), R9; \
+	MOVQ    40(R13), R10; \
+	MOVQ    48(R13), R11; \
+	MOVQ    56(R13), R12; \
+	MOVQ    x+8(FP), SI; \
+	MOVQ    n+16(FP), CX; \
+	MOVQ    acc+24(FP), R13; \
+	VMOVUPS (R13), Y15; \
+	XORQ    DI, DI
+
+// STOREACC writes the accumulators back.
+#define STOREACC \
+	MOVQ    acc+24(FP), R13; \
+	VMOVUPS Y15, (R13); \
+	VZEROUPPER
+
+// MAC4 transposes the split-layout group A0 … A3 (four consecutive k) in
+// its lanes and adds x[k+j]·column_j to the accumulators for j = 0 … 3, in
+// order; O0 … O3 are the byte offsets of those x values from x[k].
+// Clobbers A0 … A3 and Y8 … Y13.
+#define MAC4(A0, A1, A2, A3, O0, O1, O2, O3) \
+	VUNPCKLPS    A1, A0, Y8; \
+	VUNPCKHPS    A1, A0, Y9; \
+	VUNPCKLPS    A3, A2, Y10; \
+	VUNPCKHPS    A3, A2, Y11; \
+	VSHUFPS      $0x44, Y10, Y8, A0; \
+	VSHUFPS      $0xEE, Y10, Y8, A1; \
+	VSHUFPS      $0x44, Y11, Y9, A2; \
+	VSHUFPS      $0xEE, Y11, Y9, A3; \
+	VBROADCASTSS O0(SI)(DI*4), Y12; \
+	VBROADCASTSS O1(SI)(DI*4), Y13; \
+	VMULPS       A0, Y12, Y12; \
+	VMULPS       A1, Y13, Y13; \
+	VADDPS       Y12, Y15, Y15; \
+	VADDPS       Y13, Y15, Y15; \
+	VBROADCASTSS O2(SI)(DI*4), Y12; \
+	VBROADCASTSS O3(SI)(DI*4), Y13; \
+	VMULPS       A2, Y12, Y12; \
+	VMULPS       A3, Y13, Y13; \
+	VADDPS       Y12, Y15, Y15; \
+	VADDPS       Y13, Y15, Y15
+
+// SPLIT turns two converted full rows LO = w_i[k..k+7] and HI =
+// w_{i+4}[k..k+7] into the split-layout pair A (k..k+3) and B (k+4..k+7).
+#define SPLIT(LO, HI, A, B) \
+	VPERM2F128 $0x20, HI, LO, A; \
+	VPERM2F128 $0x31, HI, LO, B
+
+// func dot8F32AVX2(rows *[8]*float32, x *float32, n int, acc *[8]float32)
+TEXT ·dot8F32AVX2(SB), NOSPLIT, $0-32
+	LOADROWS
+
+f32loop:
+	VMOVUPS     (AX)(DI*4), X0
+	VINSERTF128 $1, (R9)(DI*4), Y0, Y0
+	VMOVUPS     (BX)(DI*4), X1
+	VINSERTF128 $1, (R10)(DI*4), Y1, Y1
+	VMOVUPS     (DX)(DI*4), X2
+	VINSERTF128 $1, (R11)(DI*4), Y2, Y2
+	VMOVUPS     (R8)(DI*4), X3
+	VINSERTF128 $1, (R12)(DI*4), Y3, Y3
+	VMOVUPS     16(AX)(DI*4), X4
+	VINSERTF128 $1, 16(R9)(DI*4), Y4, Y4
+	VMOVUPS     16(BX)(DI*4), X5
+	VINSERTF128 $1, 16(R10)(DI*4), Y5, Y5
+	VMOVUPS     16(DX)(DI*4), X6
+	VINSERTF128 $1, 16(R11)(DI*4), Y6, Y6
+	VMOVUPS     16(R8)(DI*4), X7
+	VINSERTF128 $1, 16(R12)(DI*4), Y7, Y7
+	MAC4(Y0, Y1, Y2, Y3, 0, 4, 8, 12)
+	MAC4(Y4, Y5, Y6, Y7, 16, 20, 24, 28)
+	ADDQ        $8, DI
+	CMPQ        DI, CX
+	JLT         f32loop
+
+	STOREACC
+	RET
+
+// func dot8F16AVX2(rows *[8]*uint16, x *float32, n int, acc *[8]float32)
+//
+// The rows hold binary16 bit patterns, widened exactly by VCVTPH2PS (F16C).
+TEXT ·dot8F16AVX2(SB), NOSPLIT, $0-32
+	LOADROWS
+
+f16loop:
+	VCVTPH2PS (AX)(DI*2), Y8
+	VCVTPH2PS (R9)(DI*2), Y9
+	VCVTPH2PS (BX)(DI*2), Y10
+	VCVTPH2PS (R10)(DI*2), Y11
+	SPLIT(Y8, Y9, Y0, Y4)
+	SPLIT(Y10, Y11, Y1, Y5)
+	VCVTPH2PS (DX)(DI*2), Y8
+	VCVTPH2PS (R11)(DI*2), Y9
+	VCVTPH2PS (R8)(DI*2), Y10
+	VCVTPH2PS (R12)(DI*2), Y11
+	SPLIT(Y8, Y9, Y2, Y6)
+	SPLIT(Y10, Y11, Y3, Y7)
+	MAC4(Y0, Y1, Y2, Y3, 0, 4, 8, 12)
+	MAC4(Y4, Y5, Y6, Y7, 16, 20, 24, 28)
+	ADDQ      $8, DI
+	CMPQ      DI, CX
+	JLT       f16loop
+
+	STOREACC
+	RET
+
+// BF16ROW widens eight bfloat16 patterns at M into the float32 lanes of R:
+// zero-extend to 32 bits, then shift into the upper half (exact).
+#define BF16ROW(M, R) \
+	VPMOVZXWD M, R; \
+	VPSLLD    $16, R, R
+
+// func dot8BF16AVX2(rows *[8]*uint16, x *float32, n int, acc *[8]float32)
+//
+// The rows hold bfloat16 bit patterns (the upper halves of binary32 values).
+TEXT ·dot8BF16AVX2(SB), NOSPLIT, $0-32
+	LOADROWS
+
+bf16loop:
+	BF16ROW((AX)(DI*2), Y8)
+	BF16ROW((R9)(DI*2), Y9)
+	BF16ROW((BX)(DI*2), Y10)
+	BF16ROW((R10)(DI*2), Y11)
+	SPLIT(Y8, Y9, Y0, Y4)
+	SPLIT(Y10, Y11, Y1, Y5)
+	BF16ROW((DX)(DI*2), Y8)
+	BF16ROW((R11)(DI*2), Y9)
+	BF16ROW((R8)(DI*2), Y10)
+	BF16ROW((R12)(DI*2), Y11)
+	SPLIT(Y8, Y9, Y2, Y6)
+	SPLIT(Y10, Y11, Y3, Y7)
+	MAC4(Y0, Y1, Y2, Y3, 0, 4, 8, 12)
+	MAC4(Y4, Y5, Y6, Y7, 16, 20, 24, 28)
+	ADDQ $8, DI
+	CMPQ DI, CX
+	JLT  bf16loop
+
+	STOREACC
+	RET

@@ -1,0 +1,4 @@
+package kernels
+
+// GEMVKernel exposes gemvKernel to the external tests and benchmarks.
+var GEMVKernel = gemvKernel
