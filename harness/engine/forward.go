@@ -575,16 +575,23 @@ func (m *Model) headNorms(st *state, li, r int, q, k, v []float32) []float32 {
 	return norms
 }
 
-// denseMLPShare is the mean kept fraction of a batch's rows above which the
-// MLP runs as batched dense products with the dropped neurons zeroed, rather
-// than as per-row gathers: batched products are several times more efficient
-// per multiply than row-at-a-time ones. Both give the same bits.
-const denseMLPShare = 0.3
-
-// denseMLPRows is the batch size from which the batched products win
-// whatever the kept share (row gathers then cost more than the full
-// product, measured on the OPT-125M-shaped checkpoint with AVX2).
-const denseMLPRows = 32
+// gatherMLPShare returns the largest mean kept fraction of a batch of R rows
+// at which the MLP runs as per-row gathers (kept rows of the up projection,
+// kept columns of the down projection, with the AVX2 eight-row GEMV); above
+// it the batch runs as batched dense products with the dropped neurons
+// zeroed. Both give the same bits, so this is a speed choice only: the
+// cheaper of the two per block. Break-even points measured with
+// BenchmarkPrefillSparse-style runs on the OPT-125M-shaped f16 checkpoint
+// (2 threads, AVX2; harness/kernels/PERF_NOTES.md): at 8 rows gathers won
+// even at 50% kept (a short batch cannot amortise the dense product's
+// weight packing); at 64 and 512 rows gathers and the dense product broke
+// even near 30% kept.
+func gatherMLPShare(R int) float64 {
+	if R < 16 {
+		return 0.5
+	}
+	return 0.25
+}
 
 func (m *Model) mlp(st *state, li int) {
 	c, L := m.Config, &m.layers[li]
@@ -627,7 +634,7 @@ func (m *Model) mlp(st *state, li int) {
 			}
 		}
 	}
-	if st.hook == nil || (R > 1 && (float64(kept) > denseMLPShare*float64(R*f) || R >= denseMLPRows)) {
+	if st.hook == nil || (R > 1 && float64(kept) > gatherMLPShare(R)*float64(R*f)) {
 		kernels.Linear(st.u, st.h, R, L.up, L.upB, m.threads)
 		if L.gate != nil {
 			kernels.Linear(st.g, st.h, R, L.gate, nil, m.threads)
