@@ -506,12 +506,13 @@ func (m *Model) attendHead(out, q []float32, s *Session, li, head, n int, scores
 	}
 	scores = scores[:n]
 	K, V, P := s.k[li], s.v[li], s.present[li]
+	kernels.DotStrided(scores, q, K, kvd, g*hd)
 	for j := 0; j < n; j++ {
 		if P != nil && !P[j*c.KVHeads+g] {
 			scores[j] = float32(math.Inf(-1))
 			continue
 		}
-		scores[j] = kernels.Dot(q, K[j*kvd+g*hd:j*kvd+(g+1)*hd]) * scale
+		scores[j] *= scale
 	}
 	kernels.Softmax(scores)
 	clear(out)

@@ -12,6 +12,20 @@ func Softmax(x []float32) {
 		return
 	}
 	mx := maxOrNaN(x)
+	// Each exponential is computed once and kept, in chunks, for the
+	// division: the same values as computing it twice.
+	var e [1024]float64
+	if len(x) <= len(e) {
+		var sum float64
+		for i, v := range x {
+			e[i] = math.Exp(f64(v) - mx)
+			sum += e[i]
+		}
+		for i := range x {
+			x[i] = float32(e[i] / sum)
+		}
+		return
+	}
 	var sum float64
 	for _, v := range x {
 		sum += math.Exp(f64(v) - mx)

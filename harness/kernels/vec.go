@@ -10,6 +10,37 @@ func Dot(a, b []float32) float32 {
 	return dotAcc(0, a, b)
 }
 
+// DotStrided sets dst[j] = Σ_k x[k]·M[j·stride+off+k] over k < len(x) for
+// j < len(dst): the dot products of x with len(dst) equally spaced rows of
+// the flat matrix m (an attention head's query against the cached keys).
+// Each is exactly Dot's value (one accumulator, ascending k, each product
+// rounded); eight rows at a time run through the eight-row GEMV kernel. m
+// must hold (len(dst)-1)·stride+off+len(x) values.
+func DotStrided(dst, x, m []float32, stride, off int) {
+	n, rows := len(x), len(dst)
+	if rows == 0 {
+		return
+	}
+	if off < 0 || stride < 0 || (rows-1)*stride+off+n > len(m) {
+		panic(msgVecLen)
+	}
+	w := Mat{DType: F32, F32: m}
+	var offs [8]int
+	j := 0
+	for ; j+8 <= rows; j += 8 {
+		for q := range offs {
+			offs[q] = (j+q)*stride + off
+		}
+		var acc [8]float32
+		dot8Rows(&acc, x, &w, &offs, nil)
+		copy(dst[j:j+8], acc[:])
+	}
+	for ; j < rows; j++ {
+		o := j*stride + off
+		dst[j] = dotAcc(0, x, m[o:o+n])
+	}
+}
+
 // Axpy does y[i] += alpha·x[i] (product rounded, then added).
 // len(x) must equal len(y).
 func Axpy(alpha float32, x, y []float32) {

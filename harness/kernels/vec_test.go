@@ -98,3 +98,48 @@ func TestReLU(t *testing.T) {
 		t.Fatalf("ReLU(-Inf) = %v, want 0", x[5])
 	}
 }
+
+// DotStrided is Dot over equally spaced rows, bit for bit, for row counts
+// around the eight-row blocks, any head width, and with no write outside dst.
+func TestDotStridedIsDot(t *testing.T) {
+	next := uint32(1)
+	rnd := func() float32 {
+		next = next*1664525 + 1013904223
+		return float32(int32(next>>8)-1<<23) / float32(1<<23)
+	}
+	for _, rows := range []int{0, 1, 7, 8, 9, 16, 23, 40} {
+		for _, n := range []int{1, 5, 8, 17, 32, 64} {
+			stride, off := 3*n+2, n+1
+			m := make([]float32, max(rows, 1)*stride+off+n)
+			for i := range m {
+				m[i] = rnd()
+			}
+			x := make([]float32, n)
+			for i := range x {
+				x[i] = rnd()
+			}
+			buf := make([]float32, rows+2)
+			buf[0], buf[rows+1] = 12345, -6789 // sentinels
+			dst := buf[1 : rows+1]
+			kernels.DotStrided(dst, x, m, stride, off)
+			if buf[0] != 12345 || buf[rows+1] != -6789 {
+				t.Fatalf("rows %d n %d: wrote outside dst", rows, n)
+			}
+			for j := range dst {
+				want := kernels.Dot(x, m[j*stride+off:j*stride+off+n])
+				if math.Float32bits(dst[j]) != math.Float32bits(want) {
+					t.Fatalf("rows %d n %d row %d: %v, Dot gives %v", rows, n, j, dst[j], want)
+				}
+			}
+		}
+	}
+	x := []float32{1, float32(math.NaN()), 0, 0, 0, 0, 0, 0, 0}
+	m := make([]float32, 9*9)
+	dst := make([]float32, 9)
+	kernels.DotStrided(dst, x, m, 9, 0)
+	for j, v := range dst {
+		if v == v {
+			t.Fatalf("row %d: NaN in x must give NaN, got %v", j, v)
+		}
+	}
+}
