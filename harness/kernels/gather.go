@@ -98,8 +98,25 @@ func checkScatter(y, h []float32, w *Mat, bias []float32, idx []int32) {
 func scatterBlock(y, h []float32, w *Mat, bias []float32, idx []int32, j0, j1 int, buf []float32) {
 	acc := y[j0:j1]
 	clear(acc)
-	for r, k := range idx {
-		axpyAcc(h[r], w.storedRange(buf, int(k)*w.Out+j0, j1-j0), acc)
+	if w.DType == F16 {
+		width := j1 - j0
+		row := func(r int) []uint16 {
+			off := int(idx[r])*w.Out + j0
+			return w.Half[off : off+width]
+		}
+		r := 0
+		for ; r+4 <= len(idx); r += 4 { // four rows at a time, same order
+			alpha := [4]float32{h[r], h[r+1], h[r+2], h[r+3]}
+			x := [4][]uint16{row(r), row(r + 1), row(r + 2), row(r + 3)}
+			axpy4F16Acc(&alpha, &x, acc)
+		}
+		for ; r < len(idx); r++ {
+			axpyF16Acc(h[r], row(r), acc)
+		}
+	} else {
+		for r, k := range idx {
+			axpyAcc(h[r], w.storedRange(buf, int(k)*w.Out+j0, j1-j0), acc)
+		}
 	}
 	if bias != nil {
 		for j := range acc {

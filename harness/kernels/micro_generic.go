@@ -42,6 +42,16 @@ func axpyGo(alpha float32, x, y []float32) {
 	}
 }
 
+// axpyF16Go does y[j] += alpha·float32(x[j]) for the binary16 x (each
+// value widened exactly, the product rounded, then added) for j < len(y);
+// len(x) >= len(y). It is axpyF16Acc's portable twin.
+func axpyF16Go(alpha float32, x []uint16, y []float32) {
+	x = x[:len(y)]
+	for j, h := range x {
+		y[j] += float32(alpha * F16Value(h))
+	}
+}
+
 // f16ToF32Go converts binary16 bit patterns; len(dst) == len(src). It is
 // f16ToF32Slice's portable twin.
 func f16ToF32Go(dst []float32, src []uint16) {

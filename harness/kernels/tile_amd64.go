@@ -96,6 +96,50 @@ func axpyAcc(alpha float32, x, y []float32) {
 	axpyGo(alpha, x, y)
 }
 
+// axpyF16Acc does y[j] += alpha·float32(x[j]) for the binary16 x (product
+// rounded, then added) for j < len(y); len(x) >= len(y). With AVX2 and F16C,
+// blocks of eight widen, multiply and add in registers: the bits of
+// converting x first and calling axpyAcc.
+func axpyF16Acc(alpha float32, x []uint16, y []float32) {
+	n := len(y)
+	x = x[:n]
+	if hasAVX2 && hasF16C && n >= 8 {
+		blocks := n &^ 7
+		axpyF16AVX2(alpha, &x[0], &y[0], blocks)
+		x, y = x[blocks:], y[blocks:]
+	}
+	axpyF16Go(alpha, x, y)
+}
+
+// axpy4F16Acc does, for j < len(y), y[j] += alpha[q]·float32(x[q][j]) for
+// q = 0, 1, 2, 3 in that order (products rounded, then added): the bits of
+// four axpyF16Acc calls, with the four rows streamed together.
+func axpy4F16Acc(alpha *[4]float32, x *[4][]uint16, y []float32) {
+	n := len(y)
+	if hasAVX2 && hasF16C && n >= 8 {
+		blocks := n &^ 7
+		p := [4]*uint16{&x[0][:n][0], &x[1][:n][0], &x[2][:n][0], &x[3][:n][0]}
+		axpy4F16AVX2(alpha, &p, &y[0], blocks)
+		for q := range 4 {
+			axpyF16Go(alpha[q], x[q][blocks:n], y[blocks:])
+		}
+		return
+	}
+	for q := range 4 {
+		axpyF16Go(alpha[q], x[q], y)
+	}
+}
+
+// axpy4F16AVX2 is axpy4F16Acc on n (a multiple of 8) elements (half_amd64.s).
+//
+//go:noescape
+func axpy4F16AVX2(alpha *[4]float32, x *[4]*uint16, y *float32, n int)
+
+// axpyF16AVX2 is axpyF16Acc on n (a multiple of 8) elements (half_amd64.s).
+//
+//go:noescape
+func axpyF16AVX2(alpha float32, x *uint16, y *float32, n int)
+
 // axpyAVX2 is axpyAcc on n (a multiple of 8) elements (micro_amd64.s).
 //
 //go:noescape

@@ -51,3 +51,15 @@ func f16ToF32Slice(dst []float32, src []uint16) { f16ToF32Go(dst, src) }
 // axpyAcc does y[j] += alpha·x[j] (product rounded, then added) for
 // j < len(y); len(x) >= len(y).
 func axpyAcc(alpha float32, x, y []float32) { axpyGo(alpha, x, y) }
+
+// axpyF16Acc does y[j] += alpha·float32(x[j]) for the binary16 x (product
+// rounded, then added) for j < len(y); len(x) >= len(y).
+func axpyF16Acc(alpha float32, x []uint16, y []float32) { axpyF16Go(alpha, x, y) }
+
+// axpy4F16Acc does, for j < len(y), y[j] += alpha[q]·float32(x[q][j]) for
+// q = 0, 1, 2, 3 in that order (products rounded, then added).
+func axpy4F16Acc(alpha *[4]float32, x *[4][]uint16, y []float32) {
+	for q := range 4 {
+		axpyF16Go(alpha[q], x[q], y)
+	}
+}

@@ -83,7 +83,8 @@ type recorder struct {
 	keepHeads             int
 	mlpX, attnX           [][]float32 // per layer, rows × d
 	mlpY, attnY           [][]uint8   // per layer, rows × width
-	scratch, sel          []int32
+	scratch               []uint64
+	sel                   []int32
 }
 
 func (r *recorder) pick(t *engine.Token) []float32 {
@@ -182,7 +183,7 @@ func Calibrate(base *engine.Model, baseDir string, text []byte, outDir string, o
 	rec := &recorder{cfgFFN: cfg.FFN, heads: cfg.Heads, layers: cfg.Layers, input: opts.Input,
 		relu: cfg.Activation == "relu", mlpX: make([][]float32, cfg.Layers), attnX: make([][]float32, cfg.Layers),
 		mlpY: make([][]uint8, cfg.Layers), attnY: make([][]uint8, cfg.Layers),
-		scratch: make([]int32, max(cfg.FFN, cfg.Heads))}
+		scratch: make([]uint64, 2*max(cfg.FFN, cfg.Heads))}
 	if opts.KeepHeads > 0 {
 		rec.keepHeads = max(1, int(math.Round(opts.KeepHeads*float64(cfg.Heads))))
 	}

@@ -2,7 +2,6 @@ package sparsity
 
 import (
 	"math"
-	"slices"
 	"sync"
 
 	"sparsegate/harness/engine"
@@ -38,7 +37,7 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 	width := max(cfg.FFN, cfg.Heads)
 	h.out[0], h.out[1] = make([]int32, 0, width), make([]int32, 0, width)
 	h.oracle = make([]int32, 0, width)
-	h.order = make([]int32, width)
+	h.order = make([]uint64, 2*width)
 	h.mag = make([]float32, width)
 	for l := range h.sel {
 		for _, c := range Components() {
@@ -83,7 +82,7 @@ type hook struct {
 	flip        int
 	none        []int32
 	oracle      []int32
-	order       []int32
+	order       []uint64
 	mag, hidden []float32
 }
 
@@ -233,20 +232,13 @@ func rms(x []float32) float64 {
 
 // topKInto returns, ascending, the indices of the k largest values (ties go
 // to the lower index, NaN ranks below everything), appended to dst[:0];
-// order is scratch of at least len(vals). It selects the same set as TopK
+// scratch holds at least 2·len(vals) keys. It selects the same set as TopK
 // without allocating.
-func topKInto(dst, order []int32, vals []float32, k int) []int32 {
+func topKInto(dst []int32, scratch []uint64, vals []float32, k int) []int32 {
 	if k < 0 || k > len(vals) {
 		panic("sparsity: topKInto k out of range")
 	}
-	order = order[:len(vals)]
-	for i := range order {
-		order[i] = int32(i)
-	}
-	selectTop(order, vals, k) // linear-time selection; same set as a full sort
-	dst = append(dst[:0], order[:k]...)
-	slices.Sort(dst)
-	return dst
+	return topKKeys(dst, scratch, vals, k)
 }
 
 // intersectCount counts the common elements of two ascending lists.
@@ -306,7 +298,7 @@ func (h *hook) NeuronsBatch(toks []*engine.Token) [][]int32 {
 		wg.Add(1)
 		go func(r0, r1 int) {
 			defer wg.Done()
-			order := make([]int32, p.Out)
+			order := make([]uint64, 2*p.Out)
 			for i := r0; i < r1; i++ {
 				out[i] = topKInto(make([]int32, 0, s.rule.K), order, scores[i*p.Out:(i+1)*p.Out], s.rule.K)
 			}

@@ -398,7 +398,7 @@ func TestTopKIntoMatchesTopK(t *testing.T) {
 	for i := range vals {
 		vals[i] = float32((i*53)%17) - 8 // many ties
 	}
-	order := make([]int32, len(vals))
+	order := make([]uint64, 2*len(vals))
 	for k := 0; k <= len(vals); k += 7 {
 		require.Equal(t, TopK(nil, vals, k), topKInto(nil, order, vals, k), "k=%d", k)
 	}

@@ -3,7 +3,6 @@ package sparsity
 import (
 	"fmt"
 	"math"
-	"slices"
 
 	"sparsegate/harness/kernels"
 )
@@ -63,12 +62,5 @@ func TopK(dst []int32, scores []float32, k int) []int32 {
 	if k < 0 || k > len(scores) {
 		panic("sparsity: TopK k out of range")
 	}
-	idx := make([]int32, len(scores))
-	for i := range idx {
-		idx[i] = int32(i)
-	}
-	selectTop(idx, scores, k)
-	dst = append(dst[:0], idx[:k]...)
-	slices.Sort(dst)
-	return dst
+	return topKKeys(dst, make([]uint64, 2*len(scores)), scores, k)
 }
