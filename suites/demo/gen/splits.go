@@ -14,11 +14,18 @@ type Sizes struct {
 	// Items and Pool count probe items per family: held-out items, and the
 	// separate pool few-shot examples are drawn from.
 	Items, Pool int
+	// DrillDocs counts retrieval drills (see World.Drill), the trainer's
+	// curriculum; they are training text too.
+	DrillDocs int
+	// DevItems counts, per family, the items the trainer scores for model
+	// selection; they are disjoint from the held-out items and the pools.
+	DevItems int
 }
 
 // DefaultSizes are the sizes the demo model was trained and measured with.
 func DefaultSizes() Sizes {
-	return Sizes{TrainDocs: 16000, ValidDocs: 300, HeldOutDocs: 400, WeatherDocs: 300, Items: 320, Pool: 64}
+	return Sizes{TrainDocs: 16000, ValidDocs: 300, HeldOutDocs: 400, WeatherDocs: 300, Items: 320, Pool: 64,
+		DrillDocs: 6000, DevItems: 100}
 }
 
 // Data is every split of the scenario for one seed.
@@ -27,6 +34,11 @@ type Data struct {
 	Train, Valid, HeldOut, Weather []string
 	// Items and Pools hold, per family, the held-out items and the few-shot pool.
 	Items, Pools map[string][]Item
+	// Drill holds the retrieval drills, drawn after everything else so that
+	// adding them changed no other split.
+	Drill []string
+	// Dev holds, per family, the trainer's model-selection items.
+	Dev map[string][]Item
 }
 
 // Stream numbers keep the splits' random draws independent of each other and
@@ -38,6 +50,8 @@ const (
 	streamItems
 	streamPool
 	streamValid
+	streamDrill
+	streamDev
 )
 
 // Generate draws all splits. Held-out documents equal to a training document
@@ -48,7 +62,7 @@ const (
 // have learned, so their questions recur in training by design.
 func Generate(seed uint64, s Sizes) (*Data, error) {
 	w := NewWorld(seed)
-	d := &Data{Items: map[string][]Item{}, Pools: map[string][]Item{}}
+	d := &Data{Items: map[string][]Item{}, Pools: map[string][]Item{}, Dev: map[string][]Item{}}
 	rng := func(stream uint64) *rand.Rand { return rand.New(rand.NewPCG(seed, stream)) }
 
 	seenDoc := map[string]bool{}
@@ -85,7 +99,7 @@ func Generate(seed uint64, s Sizes) (*Data, error) {
 			stream uint64
 			n      int
 			dst    map[string][]Item
-		}{{streamPool, s.Pool, d.Pools}, {streamItems, s.Items, d.Items}} {
+		}{{streamPool, s.Pool, d.Pools}, {streamItems, s.Items, d.Items}, {streamDev, s.DevItems, d.Dev}} {
 			r := rng(split.stream*16 + uint64(fi))
 			for tries := 0; len(split.dst[fam]) < split.n; tries++ {
 				if tries > 50*split.n+100 {
@@ -99,6 +113,14 @@ func Generate(seed uint64, s Sizes) (*Data, error) {
 				split.dst[fam] = append(split.dst[fam], it)
 			}
 		}
+	}
+	// Drills must not teach an in-context probe question: a drill table or
+	// route whose question would be an item's, a pool example's or a dev
+	// item's context is redrawn.
+	r = rng(streamDrill)
+	skip := func(c string) bool { return seenCtx[c] }
+	for len(d.Drill) < s.DrillDocs {
+		d.Drill = append(d.Drill, w.Drill(r, skip))
 	}
 	return d, nil
 }

@@ -11,10 +11,13 @@ import (
 	"flag"
 	"fmt"
 	"log"
+	"math/rand/v2"
 	"os"
 	"path/filepath"
+	"strings"
 
 	"sparsegate/harness/atomicfile"
+	"sparsegate/harness/tokenize"
 	"sparsegate/suites/demo/gen"
 )
 
@@ -60,15 +63,60 @@ func main() {
 	if err != nil {
 		log.Fatal(err)
 	}
+	nDrill, err := gen.WriteIDs(filepath.Join(*out, "drill.u16"), tok, d.Drill)
+	if err != nil {
+		log.Fatal(err)
+	}
+	if err := writeDev(filepath.Join(*out, "dev.json"), tok, d); err != nil {
+		log.Fatal(err)
+	}
 	bos, _ := tok.BOS()
 	eos, _ := tok.EOS()
 	pad, _ := tok.PAD()
 	meta, _ := json.MarshalIndent(map[string]any{
 		"seed": *seed, "vocab": tok.VocabSize(), "bos": bos, "eos": eos, "pad": pad,
 		"train_tokens": nTrain, "valid_tokens": nValid, "train_docs": len(d.Train),
+		"drill_tokens": nDrill, "drill_docs": len(d.Drill),
 	}, "", "  ")
 	if err := atomicfile.WriteFile(filepath.Join(*out, "meta.json"), append(meta, '\n')); err != nil {
 		log.Fatal(err)
 	}
-	fmt.Printf("wrote %s: %d training tokens, %d validation tokens, vocabulary %d (%s)\n", *out, nTrain, nValid, tok.VocabSize(), tok.Describe())
+	fmt.Printf("wrote %s: %d training tokens, %d drill tokens, %d validation tokens, vocabulary %d (%s)\n", *out, nTrain, nDrill, nValid, tok.VocabSize(), tok.Describe())
+}
+
+// devProbe is one dev item as the trainer scores it: the token ids of the
+// 4-shot prompt (BOS first) and of each option, and the right option.
+type devProbe struct {
+	Prompt  []int   `json:"prompt"`
+	Options [][]int `json:"options"`
+	Answer  int     `json:"answer"`
+}
+
+// writeDev writes, per family, the dev items as 4-shot multiple-choice
+// probes built the way the quality test builds them (shots from the pool,
+// joined by blank lines), so the trainer can log few-shot accuracy for model
+// selection without touching the held-out items.
+func writeDev(path string, tok *tokenize.Tokenizer, d *gen.Data) error {
+	out := map[string][]devProbe{}
+	r := rand.New(rand.NewPCG(11, 11))
+	for _, fam := range gen.Families() {
+		pool := d.Pools[fam]
+		for _, it := range d.Dev[fam] {
+			var b strings.Builder
+			for _, j := range r.Perm(len(pool))[:4] {
+				b.WriteString(pool[j].Context + pool[j].Target + "\n\n")
+			}
+			b.WriteString(it.Context)
+			p := devProbe{Prompt: tok.EncodeForModel(b.String()), Answer: it.Answer}
+			for _, o := range it.Options {
+				p.Options = append(p.Options, tok.Encode(o))
+			}
+			out[fam] = append(out[fam], p)
+		}
+	}
+	js, err := json.Marshal(out)
+	if err != nil {
+		return err
+	}
+	return atomicfile.WriteFile(path, append(js, '\n'))
 }

@@ -226,5 +226,52 @@ class BadInput(unittest.TestCase):
         self.assertIn("holds 3 tokens, fewer than --seq + 1 = 5", err)
 
 
+class Curriculum(unittest.TestCase):
+    """--drill mixes a second id stream into the training windows; --dev
+    logs few-shot accuracy on probes built from token ids."""
+
+    def test_drill_is_learned_and_dev_accuracy_logged(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            # The drill stream: another pattern, which only the drill teaches.
+            pattern = np.random.Generator(np.random.PCG64(9)).integers(3, VOCAB, size=31)
+            doc = np.concatenate([[BOS], pattern])
+            drill_path = os.path.join(d, "drill.u16")
+            np.tile(doc, 200).astype("<u2").tofile(drill_path)
+            # Dev probes: a drill prefix twice over, then the right next id
+            # against three others.
+            probes = []
+            for cut in range(6, 26, 4):
+                prompt = [int(v) for v in np.concatenate([doc, doc[:cut]])]
+                right = int(doc[cut])
+                wrong = [v for v in range(3, VOCAB) if v != right][:3]
+                probes.append({"prompt": prompt, "options": [[right]] + [[v] for v in wrong], "answer": 0})
+            dev_path = os.path.join(d, "dev.json")
+            with open(dev_path, "w", encoding="utf-8") as f:
+                json.dump({"drillfam": probes}, f)
+            args = ["--train", train_path, "--valid", valid_path] + TINY + ["--steps", "120", "--dev", dev_path]
+            with contextlib.redirect_stderr(io.StringIO()):
+                _, plain = train.run(train.parse_args(args + ["--out", os.path.join(d, "a")]))
+                _, mixed = train.run(train.parse_args(args + ["--out", os.path.join(d, "b"), "--drill", drill_path,
+                                                              "--drill-mix-start", "0.6", "--drill-mix-end", "0.4"]))
+            self.assertIn("drillfam", mixed["evals"][-1]["dev_acc"])
+            self.assertGreaterEqual(mixed["evals"][-1]["dev_acc"]["drillfam"], 0.8, mixed["evals"][-1]["line"])
+            self.assertLess(plain["evals"][-1]["dev_acc"]["drillfam"], mixed["evals"][-1]["dev_acc"]["drillfam"])
+            for e in mixed["evals"]:
+                self.assertTrue(0 < e["residual_cos"] <= 1.0 + 1e-6, e["line"])
+
+    def test_drill_options_need_a_drill_and_a_share(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            base = ["--train", train_path, "--valid", valid_path, "--out", os.path.join(d, "o")] + TINY
+            for extra, msg in ((["--drill-mix-start", "0.5"], "need --drill FILE"),
+                               (["--drill", train_path, "--drill-mix-end", "1.5"], "must lie in [0, 1]")):
+                err = io.StringIO()
+                with contextlib.redirect_stderr(err):
+                    rc = train.main(base + extra)
+                self.assertEqual(rc, 2, err.getvalue())
+                self.assertIn(msg, err.getvalue())
+
+
 if __name__ == "__main__":
     unittest.main()

@@ -133,11 +133,14 @@ class OPTDecoder(nn.Module):
         mask = torch.zeros(max_positions, max_positions).masked_fill(future, float("-inf"))
         self.register_buffer("causal_mask", mask, persistent=False)
 
-    def forward(self, ids, act_stats=False):
+    def forward(self, ids, act_stats=False, cosines=None):
         """forward maps ids [B, T] to logits [B, T, vocab].
 
         With act_stats it also returns the mean post-ReLU activation over all
-        layers, tokens and neurons (with grad) and the count of exact zeros."""
+        layers, tokens and neurons (with grad) and the count of exact zeros.
+        When cosines is a list, it appends, per layer after the first, the
+        mean cosine similarity between the residual stream entering that
+        layer and the one entering the layer before (no grad)."""
         dec, d, nh = self.model.decoder, self.hidden, self.heads
         b, t = ids.shape
         if t > self.max_positions:
@@ -147,7 +150,12 @@ class OPTDecoder(nn.Module):
         mask = self.causal_mask[:t, :t]
         x = dec.embed_tokens.weight[ids] + dec.embed_positions.weight[POS_OFFSET:POS_OFFSET + t]
         act_sum, zeros = 0.0, 0
+        prev = None
         for L in dec.layers:
+            if cosines is not None:
+                if prev is not None:
+                    cosines.append(float(F.cosine_similarity(x.detach(), prev, dim=-1).mean()))
+                prev = x.detach()
             a = L.self_attn
             h = F.layer_norm(x, (d,), L.self_attn_layer_norm.weight, L.self_attn_layer_norm.bias, LN_EPS)
             qkv = F.linear(h, torch.cat([a.q_proj.weight, a.k_proj.weight, a.v_proj.weight]),
@@ -267,18 +275,56 @@ def blas_in_use(threads):
 
 @torch.no_grad()
 def evaluate(model, valid, starts, seq, batch):
-    """evaluate returns (mean NLL per token, fraction of post-ReLU activations exactly zero)."""
+    """evaluate returns (mean NLL per token, fraction of post-ReLU activations
+    exactly zero, mean cosine between the residual streams entering
+    consecutive layers)."""
     nll, tokens, zeros, acts = 0.0, 0, 0, 0
+    cos = []
     n_layers = len(model.model.decoder.layers)
     ffn = model.model.decoder.layers[0].fc1.weight.shape[0]
     for i in range(0, len(starts), batch):
         w = windows(valid, starts[i:i + batch], seq)
-        logits, _, z = model(w[:, :-1], act_stats=True)
+        logits, _, z = model(w[:, :-1], act_stats=True, cosines=cos)
         nll += float(F.cross_entropy(logits.reshape(-1, model.vocab), w[:, 1:].reshape(-1), reduction="sum"))
         tokens += w[:, 1:].numel()
         zeros += z
         acts += w[:, 1:].numel() * n_layers * ffn
-    return nll / tokens, zeros / acts
+    return nll / tokens, zeros / acts, (sum(cos) / len(cos) if cos else float("nan"))
+
+
+def read_dev(path):
+    """read_dev loads the dev probes mkdata wrote: per family, 4-shot prompts
+    (token ids), option token ids and the right option."""
+    with open(path, encoding="utf-8") as f:
+        dev = json.load(f)
+    if not isinstance(dev, dict) or not dev:
+        raise TrainError(f"{path} (--dev): expected an object of families, as mkdata writes dev.json")
+    return dev
+
+
+@torch.no_grad()
+def dev_accuracy(model, dev, limit, pad):
+    """dev_accuracy scores the first limit probes of each family in multiple
+    choice (highest total log-likelihood of the option's tokens wins) and
+    returns the accuracy per family."""
+    acc = {}
+    for fam in sorted(dev):
+        probes, right = dev[fam][:limit], 0
+        for p in probes:
+            seqs = [p["prompt"] + o for o in p["options"]]
+            n = max(len(s) for s in seqs)
+            if n > model.max_positions:
+                raise TrainError(f"dev probe of {n} tokens exceeds max_positions {model.max_positions}")
+            ids = torch.tensor([s + [pad] * (n - len(s)) for s in seqs], dtype=torch.int64)
+            logp = F.log_softmax(model(ids), dim=-1)  # right padding never reaches earlier positions
+            scores = []
+            for i, o in enumerate(p["options"]):
+                start = len(p["prompt"])
+                pos = torch.arange(start - 1, start - 1 + len(o))
+                scores.append(float(logp[i, pos, torch.tensor(o)].sum()))
+            right += int(max(range(len(scores)), key=lambda i: scores[i]) == p["answer"])
+        acc[fam] = right / max(len(probes), 1)
+    return acc
 
 
 def check_args(args, train, valid):
@@ -317,8 +363,10 @@ def eval_line(e):
         return "-" if v is None else format(v, fmt)
 
     return (f"step {e['step']} train_loss {opt(e['train_loss'], '.4f')} act_l1 {opt(e['act_l1'], '.5f')} "
-            f"valid_loss {opt(e['valid_loss'], '.4f')} zero_frac {e['zero_frac']:.4f} lr {e['lr']:.3e} "
-            f"tok/s {e['tokens_per_s']:.0f} elapsed {e['elapsed_s']:.1f}s")
+            f"valid_loss {opt(e['valid_loss'], '.4f')} zero_frac {e['zero_frac']:.4f} "
+            f"cos {opt(e.get('residual_cos'), '.3f')} lr {e['lr']:.3e} "
+            f"tok/s {e['tokens_per_s']:.0f} elapsed {e['elapsed_s']:.1f}s"
+            + "".join(f" {k} {v:.3f}" for k, v in sorted((e.get("dev_acc") or {}).items())))
 
 
 def run(args):
@@ -329,6 +377,15 @@ def run(args):
     train = read_tokens(args.train, args.vocab, "--train")
     valid = read_tokens(args.valid, args.vocab, "--valid")
     check_args(args, train, valid)
+    drill = read_tokens(args.drill, args.vocab, "--drill") if args.drill else None
+    if drill is not None and len(drill) < args.seq + 1:
+        raise TrainError(f"{args.drill} (--drill): holds {len(drill)} tokens, fewer than --seq + 1 = {args.seq + 1}")
+    for flag in ("drill_mix_start", "drill_mix_end"):
+        if not 0 <= getattr(args, flag) <= 1:
+            raise TrainError(f"--{flag.replace('_', '-')} is {getattr(args, flag)}; it must lie in [0, 1]")
+    if drill is None and (args.drill_mix_start > 0 or args.drill_mix_end > 0):
+        raise TrainError("--drill-mix-start/--drill-mix-end need --drill FILE")
+    dev = read_dev(args.dev) if args.dev else None
     os.makedirs(args.out, exist_ok=True)
     torch.manual_seed(args.seed)
     rng = np.random.Generator(np.random.PCG64(args.seed))
@@ -345,11 +402,13 @@ def run(args):
     def do_eval(step, lr_now):
         nonlocal best
         model.eval()
-        vloss, zf = evaluate(model, valid, starts_valid, args.seq, args.batch)
+        vloss, zf, cos = evaluate(model, valid, starts_valid, args.seq, args.batch)
+        accs = dev_accuracy(model, dev, args.dev_items, args.pad) if dev is not None else None
         model.train()
         n = max(sums["n"], 1)
         e = {"step": step, "train_loss": _finite(sums["ce"] / n) if sums["n"] else None,
              "act_l1": _finite(sums["l1"] / n) if sums["n"] else None, "valid_loss": _finite(vloss), "zero_frac": zf,
+             "residual_cos": _finite(cos), "dev_acc": accs,
              "lr": lr_now, "tokens_per_s": sums["n"] * args.batch * args.seq / max(sums["train_s"], 1e-9),
              "elapsed_s": time.monotonic() - t0}
         line = eval_line(e)
@@ -370,6 +429,14 @@ def run(args):
         for g in opt.param_groups:
             g["lr"] = lr_now
         w = windows(train, rng.integers(0, len(train) - args.seq, size=args.batch), args.seq)
+        if drill is not None:
+            # Curriculum: each window comes from the drills with a probability
+            # that moves linearly from --drill-mix-start to --drill-mix-end.
+            mix = args.drill_mix_start + (args.drill_mix_end - args.drill_mix_start) * step / max(args.steps - 1, 1)
+            from_drill = rng.random(args.batch) < mix
+            if from_drill.any():
+                d = windows(drill, rng.integers(0, len(drill) - args.seq, size=int(from_drill.sum())), args.seq)
+                w[torch.from_numpy(from_drill)] = d
         if args.act_l1 > 0:
             logits, act_mean, _ = model(w[:, :-1], act_stats=True)
         else:
@@ -429,6 +496,13 @@ def parse_args(argv=None):
     ap.add_argument("--eval-every", type=int, default=200, help="steps between validation evals")
     ap.add_argument("--eval-windows", type=int, default=64, help="validation windows of --seq tokens per eval")
     ap.add_argument("--log", help="text file to append the eval lines to")
+    ap.add_argument("--drill", help="retrieval drills, little-endian uint16 token ids (mkdata's drill.u16)")
+    ap.add_argument("--drill-mix-start", type=float, default=0.0,
+                    help="share of each step's windows drawn from --drill at the first step")
+    ap.add_argument("--drill-mix-end", type=float, default=0.0,
+                    help="share of each step's windows drawn from --drill at the last step (linear in between)")
+    ap.add_argument("--dev", help="dev probes (mkdata's dev.json): log 4-shot accuracy per family at each eval")
+    ap.add_argument("--dev-items", type=int, default=40, help="dev probes scored per family at each eval")
     return ap.parse_args(argv)
 
 
