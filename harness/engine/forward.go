@@ -277,7 +277,7 @@ func (m *Model) attention(st *state, li int) {
 	// row-at-a-time ones, and give the same bits).
 	if L.qkv != nil {
 		fused := make([]float32, R*3*d)
-		kernels.Linear(fused, st.h, R, L.qkv, L.qkvB, m.threads)
+		m.scratch.Linear(fused, st.h, R, L.qkv, L.qkvB, m.threads)
 		for r := 0; r < R; r++ {
 			f := fused[r*3*d:]
 			copy(st.q[r*qd:(r+1)*qd], f[:d])
@@ -285,9 +285,9 @@ func (m *Model) attention(st *state, li int) {
 			copy(st.v[r*kvd:(r+1)*kvd], f[2*d:3*d])
 		}
 	} else {
-		kernels.Linear(st.q, st.h, R, L.q, L.qB, m.threads)
-		kernels.Linear(st.k, st.h, R, L.k, L.kB, m.threads)
-		kernels.Linear(st.v, st.h, R, L.v, L.vB, m.threads)
+		m.scratch.Linear(st.q, st.h, R, L.q, L.qB, m.threads)
+		m.scratch.Linear(st.k, st.h, R, L.k, L.kB, m.threads)
+		m.scratch.Linear(st.v, st.h, R, L.v, L.vB, m.threads)
 	}
 	// Keys get their positions and join the caches before any query reads them.
 	for r := 0; r < R; r++ {
@@ -313,7 +313,7 @@ func (m *Model) attention(st *state, li int) {
 		}
 	})
 	out := st.h // the normed input is no longer needed
-	kernels.Linear(out, st.a, R, L.o, L.oB, m.threads)
+	m.scratch.Linear(out, st.a, R, L.o, L.oB, m.threads)
 	kernels.Add(st.x, st.x, out)
 }
 
@@ -373,7 +373,7 @@ func (m *Model) attentionHookedBatch(st *state, li int) {
 		}
 	})
 	out := st.h
-	kernels.Linear(out, st.a, R, L.o, L.oB, m.threads)
+	m.scratch.Linear(out, st.a, R, L.o, L.oB, m.threads)
 	kernels.Add(st.x, st.x, out)
 }
 
@@ -437,7 +437,7 @@ func (m *Model) attentionHooked(st *state, li int) {
 			scores = m.attendHead(a[i*hd:(i+1)*hd], q[i*hd:(i+1)*hd], s, li, hh, pos+1, scores)
 		}
 		if heads == nil {
-			kernels.Linear(y, a, 1, L.o, L.oB, m.threads)
+			m.scratch.Linear(y, a, 1, L.o, L.oB, m.threads)
 		} else {
 			o := L.o
 			if L.oT != nil {
@@ -459,7 +459,7 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 	if L.qkv != nil { // fused GPT-2 layout: logical rows q [0,d), k [d,2d), v [2d,3d)
 		if heads == nil {
 			all := make([]float32, 3*d)
-			kernels.Linear(all, h, 1, L.qkv, L.qkvB, m.threads)
+			m.scratch.Linear(all, h, 1, L.qkv, L.qkvB, m.threads)
 			copy(q, all[:d])
 			copy(k, all[d:2*d])
 			copy(v, all[2*d:])
@@ -482,9 +482,9 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 		return
 	}
 	if heads == nil {
-		kernels.Linear(q, h, 1, L.q, L.qB, m.threads)
-		kernels.Linear(k, h, 1, L.k, L.kB, m.threads)
-		kernels.Linear(v, h, 1, L.v, L.vB, m.threads)
+		m.scratch.Linear(q, h, 1, L.q, L.qB, m.threads)
+		m.scratch.Linear(k, h, 1, L.k, L.kB, m.threads)
+		m.scratch.Linear(v, h, 1, L.v, L.vB, m.threads)
 		return
 	}
 	kc := headColumns(groups, hd)
@@ -636,9 +636,9 @@ func (m *Model) mlp(st *state, li int) {
 		}
 	}
 	if st.hook == nil || (R > 1 && float64(kept) > gatherMLPShare(R)*float64(R*f)) {
-		kernels.Linear(st.u, st.h, R, L.up, L.upB, m.threads)
+		m.scratch.Linear(st.u, st.h, R, L.up, L.upB, m.threads)
 		if L.gate != nil {
-			kernels.Linear(st.g, st.h, R, L.gate, nil, m.threads)
+			m.scratch.Linear(st.g, st.h, R, L.gate, nil, m.threads)
 			kernels.SiLUMul(st.g, st.u)
 			st.u, st.g = st.g, st.u
 		} else {
@@ -650,7 +650,7 @@ func (m *Model) mlp(st *state, li int) {
 			}
 		}
 		out := st.h
-		kernels.Linear(out, st.u, R, L.down, L.downB, m.threads)
+		m.scratch.Linear(out, st.u, R, L.down, L.downB, m.threads)
 		kernels.Add(st.x, st.x, out)
 		return
 	}
@@ -660,7 +660,7 @@ func (m *Model) mlp(st *state, li int) {
 		u := st.u[r*f : (r+1)*f]
 		if idx[r] == nil {
 			m.mlpHidden(u, h, L, nil)
-			kernels.Linear(y, u, 1, L.down, L.downB, m.threads)
+			m.scratch.Linear(y, u, 1, L.down, L.downB, m.threads)
 		} else {
 			m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
 			down := L.down
@@ -690,7 +690,7 @@ func zeroExcept(u []float32, keep []int32) {
 // idx (all when nil) into dst.
 func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	if idx == nil {
-		kernels.Linear(dst, h, 1, L.up, L.upB, m.threads)
+		m.scratch.Linear(dst, h, 1, L.up, L.upB, m.threads)
 	} else {
 		kernels.LinearGatherParallel(dst, h, L.up, L.upB, idx, m.threads)
 	}
@@ -700,7 +700,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	}
 	g := make([]float32, len(dst))
 	if idx == nil {
-		kernels.Linear(g, h, 1, L.gate, nil, m.threads)
+		m.scratch.Linear(g, h, 1, L.gate, nil, m.threads)
 	} else {
 		kernels.LinearGatherParallel(g, h, L.gate, nil, idx, m.threads)
 	}
@@ -763,5 +763,5 @@ func parallelRows(n, threads int, fn func(r0, r1 int)) {
 
 // Logits computes the output head for n hidden rows into dst (n×VocabSize).
 func (m *Model) Logits(dst, hidden []float32, n int) {
-	kernels.Linear(dst, hidden, n, m.head, nil, m.threads)
+	m.scratch.Linear(dst, hidden, n, m.head, nil, m.threads)
 }

@@ -36,6 +36,8 @@ type Model struct {
 	normB  []float32
 	head   *kernels.Mat // output head, V×d (the embedding when tied)
 	rope   []float32    // inverse frequencies (Llama)
+
+	scratch *kernels.Scratch // the products' packing buffers, reused across calls
 }
 
 // layer holds one decoder block's weights. For GPT-2, qkv is the fused
@@ -79,7 +81,7 @@ func Load(dir string, opts Options) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads}
+	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads, scratch: new(kernels.Scratch)}
 	if m.threads <= 0 {
 		m.threads = runtime.NumCPU()
 	}

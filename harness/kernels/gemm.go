@@ -27,14 +27,17 @@ func newGemmScratch() *gemmScratch {
 
 // gemmBlocked computes y = x·Wᵀ (+ bias) for m×In x by packing panels of x
 // and W and running the register-blocked micro-kernel.
-func gemmBlocked(y, x []float32, m int, w *Mat, bias []float32, threads int) {
+// Packing buffers come from sc (fresh ones when sc is nil) and go back to it.
+func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, threads int) {
 	n, k := w.Out, w.In
 	rowJobs := (m + mcJob - 1) / mcJob
 	colJobs := (n + ncJob - 1) / ncJob
 	nJobs := rowJobs * colJobs
 	workers := workerCount(threads, nJobs, m*n*k)
+	ws := &workerScratch{s: sc, sets: make([]*gemmScratch, max(workers, 1))}
+	defer sc.put(ws.sets)
 	runJobs(nJobs, workers, func() func(int) {
-		s := newGemmScratch()
+		s := ws.take()
 		return func(job int) {
 			i0 := (job / colJobs) * mcJob
 			j0 := (job % colJobs) * ncJob

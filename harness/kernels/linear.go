@@ -6,6 +6,11 @@ package kernels
 // entries; threads >= 1 bounds the goroutines used. m == 1 takes a streaming
 // GEMV path, larger m a packed, blocked GEMM; both give the same bits.
 func Linear(y, x []float32, m int, w *Mat, bias []float32, threads int) {
+	linear(nil, y, x, m, w, bias, threads)
+}
+
+// linear is Linear, with the GEMM path's buffers from s (fresh when nil).
+func linear(s *Scratch, y, x []float32, m int, w *Mat, bias []float32, threads int) {
 	w.Check()
 	if m < 0 {
 		panic(msgLinearM)
@@ -37,7 +42,7 @@ func Linear(y, x []float32, m int, w *Mat, bias []float32, threads int) {
 		}
 		return
 	}
-	gemmBlocked(y, x, m, w, bias, threads)
+	gemmBlocked(s, y, x, m, w, bias, threads)
 }
 
 // Gemm computes the classic product C = A·B with A m×k, B k×n and C m×n,

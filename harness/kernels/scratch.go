@@ -1,0 +1,58 @@
+package kernels
+
+import (
+	"sync"
+	"sync/atomic"
+)
+
+// Scratch keeps the GEMM path's packing buffers between calls, so that a
+// caller running many products (an engine scoring thousands of windows)
+// does not allocate, and the garbage collector need not reclaim, fresh
+// buffers for every worker of every call. The zero value is ready to use
+// and safe for concurrent use. Results never depend on it: every buffer is
+// overwritten before it is read.
+type Scratch struct {
+	gemm sync.Pool // of *gemmScratch
+}
+
+// Linear is the package-level Linear, taking its packing buffers from s.
+func (s *Scratch) Linear(y, x []float32, m int, w *Mat, bias []float32, threads int) {
+	linear(s, y, x, m, w, bias, threads)
+}
+
+// get returns a packing buffer set from s, or a fresh one when s is nil or
+// holds none.
+func (s *Scratch) get() *gemmScratch {
+	if s != nil {
+		if g, ok := s.gemm.Get().(*gemmScratch); ok {
+			return g
+		}
+	}
+	return newGemmScratch()
+}
+
+// put hands buffer sets back to s (a no-op when s is nil).
+func (s *Scratch) put(gs []*gemmScratch) {
+	if s == nil {
+		return
+	}
+	for _, g := range gs {
+		if g != nil {
+			s.gemm.Put(g)
+		}
+	}
+}
+
+// workerScratch hands each of a call's workers its own buffer set and
+// returns them all to s once the call is done.
+type workerScratch struct {
+	s    *Scratch
+	next atomic.Int32
+	sets []*gemmScratch
+}
+
+func (w *workerScratch) take() *gemmScratch {
+	g := w.s.get()
+	w.sets[w.next.Add(1)-1] = g
+	return g
+}
