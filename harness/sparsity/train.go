@@ -508,13 +508,14 @@ type evaluator struct {
 	p       *Predictor
 	threads int
 	h, a, s []float32
-	idx     []int32
+	idx     []int32  // the kept set of one row
+	keys    []uint64 // top-k scratch
 }
 
 func newEvaluator(p *Predictor, threads int) *evaluator {
 	return &evaluator{p: p, threads: threads,
 		h: make([]float32, evalChunk*p.Rank), a: make([]float32, evalChunk*p.Rank),
-		s: make([]float32, evalChunk*p.Out), idx: make([]int32, p.Out)}
+		s: make([]float32, evalChunk*p.Out), idx: make([]int32, 0, p.Out), keys: make([]uint64, 2*p.Out)}
 }
 
 // run returns the mean weighted cross-entropy per label over n rows and the
@@ -533,7 +534,7 @@ func (e *evaluator) run(x []float32, active []uint8, n, k int, posW float64) (lo
 			lossSum += l
 		}
 		for i := 0; i < m; i++ {
-			hits, nAct := topKHits(s[i*out:(i+1)*out], y[i*out:(i+1)*out], k, e.idx)
+			hits, nAct := topKHits(s[i*out:(i+1)*out], y[i*out:(i+1)*out], k, e.idx, e.keys)
 			if nAct > 0 {
 				recallSum += float64(hits) / float64(nAct)
 				counted++
@@ -548,18 +549,14 @@ func (e *evaluator) run(x []float32, active []uint8, n, k int, posW float64) (lo
 }
 
 // topKHits counts the active units among the k highest scores (ties to the
-// lower index, as TopK; NaN lowest) and the active units in all; idx is
-// scratch of len(scores).
-func topKHits(scores []float32, active []uint8, k int, idx []int32) (hits, nAct int) {
+// lower index, as TopK; NaN lowest) and the active units in all; idx and
+// keys are topKKeys's scratch (capacity len(scores), and 2·len(scores)).
+func topKHits(scores []float32, active []uint8, k int, idx []int32, keys []uint64) (hits, nAct int) {
 	nAct = countActive(active)
 	if nAct == 0 {
 		return 0, 0
 	}
-	for i := range idx {
-		idx[i] = int32(i)
-	}
-	selectTop(idx, scores, k)
-	for _, i := range idx[:k] {
+	for _, i := range topKKeys(idx, keys, scores, k) {
 		hits += int(active[i])
 	}
 	return hits, nAct
@@ -578,40 +575,4 @@ func ranksBefore(scores []float32, a, b int32) bool {
 		return sa > sb
 	}
 	return a < b
-}
-
-// selectTop rearranges idx so that idx[:k] holds, in no particular order,
-// the k units that rank first (quickselect with a median-of-three pivot).
-func selectTop(idx []int32, scores []float32, k int) {
-	before := func(a, b int32) bool { return ranksBefore(scores, a, b) }
-	lo, hi := 0, len(idx)
-	for hi-lo > 1 {
-		mid, last := lo+(hi-lo)/2, hi-1
-		if before(idx[mid], idx[lo]) {
-			idx[mid], idx[lo] = idx[lo], idx[mid]
-		}
-		if before(idx[last], idx[mid]) {
-			idx[last], idx[mid] = idx[mid], idx[last]
-			if before(idx[mid], idx[lo]) {
-				idx[mid], idx[lo] = idx[lo], idx[mid]
-			}
-		}
-		idx[mid], idx[last] = idx[last], idx[mid] // the median is the pivot
-		pivot, store := idx[last], lo
-		for i := lo; i < last; i++ {
-			if before(idx[i], pivot) {
-				idx[i], idx[store] = idx[store], idx[i]
-				store++
-			}
-		}
-		idx[store], idx[last] = idx[last], idx[store]
-		switch {
-		case store == k || store == k-1:
-			return
-		case store > k:
-			hi = store
-		default:
-			lo = store + 1
-		}
-	}
 }

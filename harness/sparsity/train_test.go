@@ -426,7 +426,9 @@ func BenchmarkTrainPredictor(b *testing.B) {
 	}
 }
 
-func TestSelectTopMatchesTopK(t *testing.T) {
+// topKKeys keeps the set a full sort by ranksBefore keeps on tie-heavy,
+// sorted and reversed inputs, and ranks NaN below every number.
+func TestTopKKeysOnTiesAndNaN(t *testing.T) {
 	r := testRand(15)
 	for trial := 0; trial < 300; trial++ {
 		n := 1 + r.IntN(70)
@@ -442,21 +444,27 @@ func TestSelectTopMatchesTopK(t *testing.T) {
 				slices.Reverse(scores)
 			}
 		}
-		idx := make([]int32, n)
-		for i := range idx {
-			idx[i] = int32(i)
+		order := make([]int32, n)
+		for i := range order {
+			order[i] = int32(i)
 		}
-		selectTop(idx, scores, k)
-		got := slices.Sorted(slices.Values(idx[:k]))
-		if want := TopK(nil, scores, k); !slices.Equal(got, want) {
-			t.Fatalf("scores %v k %d: selectTop kept %v, TopK %v", scores, k, got, want)
+		slices.SortStableFunc(order, func(a, b int32) int {
+			if ranksBefore(scores, a, b) {
+				return -1
+			}
+			if ranksBefore(scores, b, a) {
+				return 1
+			}
+			return 0
+		})
+		want := slices.Sorted(slices.Values(order[:k]))
+		if got := topKKeys(nil, make([]uint64, 2*n), scores, k); !slices.Equal(got, want) {
+			t.Fatalf("scores %v k %d: topKKeys kept %v, a full sort %v", scores, k, got, want)
 		}
 	}
 	// NaN ranks below every number, -Inf included.
 	scores := []float32{float32(math.NaN()), float32(math.Inf(-1)), 2, float32(math.NaN())}
-	idx := []int32{0, 1, 2, 3}
-	selectTop(idx, scores, 2)
-	if got := slices.Sorted(slices.Values(idx[:2])); !slices.Equal(got, []int32{1, 2}) {
+	if got := topKKeys(nil, make([]uint64, 8), scores, 2); !slices.Equal(got, []int32{1, 2}) {
 		t.Errorf("top 2 of %v = %v, want [1 2]", scores, got)
 	}
 }
