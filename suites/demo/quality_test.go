@@ -9,7 +9,6 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
-	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/assert"
@@ -147,13 +146,7 @@ func fewShotAccuracy(t *testing.T, m *engine.Model, family string, k, limit int)
 	r := rand.New(rand.NewPCG(7, 7))
 	correct := 0
 	for _, it := range items {
-		var b strings.Builder
-		for _, j := range r.Perm(len(pool))[:k] {
-			ex := pool[j]
-			b.WriteString(ex.Context + ex.Target + "\n\n")
-		}
-		b.WriteString(it.Context)
-		ctx := m.Tokenizer.EncodeForModel(b.String())
+		ctx := m.Tokenizer.EncodeForModel(gen.FewShotPrompt(pool, it, k, r))
 		conts := make([][]int, len(it.Options))
 		for i, o := range it.Options {
 			conts[i] = m.Tokenizer.Encode(o)

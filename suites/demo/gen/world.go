@@ -212,6 +212,18 @@ func (w *World) question(r *rand.Rand, family string) (ctx, answer string, wrong
 	panic("gen: unknown family " + family)
 }
 
+// FewShotPrompt is the k-shot prompt for it: k distinct solved examples drawn
+// from pool with r (context then right answer, each followed by a blank
+// line), then the item's context.
+func FewShotPrompt(pool []Item, it Item, k int, r *rand.Rand) string {
+	var b strings.Builder
+	for _, j := range r.Perm(len(pool))[:k] {
+		b.WriteString(pool[j].Context + pool[j].Target + "\n\n")
+	}
+	b.WriteString(it.Context)
+	return b.String()
+}
+
 // NewItem draws one probe item of the family with the right option at a
 // random position.
 func (w *World) NewItem(r *rand.Rand, family string, id int) Item {

@@ -14,7 +14,6 @@ import (
 	"math/rand/v2"
 	"os"
 	"path/filepath"
-	"strings"
 
 	"sparsegate/harness/atomicfile"
 	"sparsegate/harness/tokenize"
@@ -102,12 +101,7 @@ func writeDev(path string, tok *tokenize.Tokenizer, d *gen.Data) error {
 	for _, fam := range gen.Families() {
 		pool := d.Pools[fam]
 		for _, it := range d.Dev[fam] {
-			var b strings.Builder
-			for _, j := range r.Perm(len(pool))[:4] {
-				b.WriteString(pool[j].Context + pool[j].Target + "\n\n")
-			}
-			b.WriteString(it.Context)
-			p := devProbe{Prompt: tok.EncodeForModel(b.String()), Answer: it.Answer}
+			p := devProbe{Prompt: tok.EncodeForModel(gen.FewShotPrompt(pool, it, 4, r)), Answer: it.Answer}
 			for _, o := range it.Options {
 				p.Options = append(p.Options, tok.Encode(o))
 			}
