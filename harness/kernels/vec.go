@@ -24,7 +24,7 @@ func DotStrided(dst, x, m []float32, stride, off int) {
 	if off < 0 || stride < 0 || (rows-1)*stride+off+n > len(m) {
 		panic(msgVecLen)
 	}
-	w := Mat{DType: F32, F32: m}
+	w := Mat{DType: F32, F32: m} // dot8Rows reads only the F32 storage at offs
 	var offs [8]int
 	j := 0
 	for ; j+8 <= rows; j += 8 {
