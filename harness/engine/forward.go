@@ -47,8 +47,20 @@ func (s *Session) appendKV(li int, k, v []float32, present []bool) {
 			s.present[li] = append(s.present[li], present...)
 		}
 	}
-	s.k[li] = append(s.k[li], k...)
-	s.v[li] = append(s.v[li], v...)
+	s.k[li] = appendDoubling(s.k[li], k)
+	s.v[li] = appendDoubling(s.v[li], v)
+}
+
+// appendDoubling appends row to c, doubling the capacity when it runs out
+// (append alone grows large slices by about a quarter, which re-copies a
+// long cache every few positions).
+func appendDoubling(c, row []float32) []float32 {
+	if len(c)+len(row) > cap(c) {
+		grown := make([]float32, len(c), max(2*cap(c), len(c)+len(row), 64*len(row)))
+		copy(grown, c)
+		c = grown
+	}
+	return append(c, row...)
 }
 
 // Len returns the number of positions cached.
@@ -516,11 +528,7 @@ func (m *Model) attendHead(out, q []float32, s *Session, li, head, n int, scores
 	}
 	kernels.Softmax(scores)
 	clear(out)
-	for j := 0; j < n; j++ {
-		if scores[j] != 0 {
-			kernels.Axpy(scores[j], V[j*kvd+g*hd:j*kvd+(g+1)*hd], out)
-		}
-	}
+	kernels.AxpyRows(out, scores, V, kvd, g*hd) // rows with weight 0 skipped
 	return scores
 }
 

@@ -9,6 +9,8 @@ import (
 	"slices"
 	"sort"
 	"strings"
+	"sync"
+	"sync/atomic"
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/kernels"
@@ -66,6 +68,13 @@ type Options struct {
 	// of every row. It costs (FFN+Heads·HeadDim)×Hidden stored values per
 	// layer; sparse builds turn it on. Results are the same bits either way.
 	NeuronMajor bool
+	// NoPanels skips the k-major panel copies (kernels.PackPanels) that Load
+	// makes of every layer projection and of the output head. The copies let
+	// single-token steps stream each matrix without transposing it in
+	// registers and let the products pack their weight panels by converting
+	// contiguous runs; they cost one more copy of those weights in their
+	// stored dtype (about the checkpoint's size again) and change no result.
+	NoPanels bool
 }
 
 // Load opens a checkpoint directory: config.json, the safetensors weights
@@ -98,6 +107,9 @@ func Load(dir string, opts Options) (*Model, error) {
 				m.layers[i].oT = neuronMajor(o)
 			}
 		}
+	}
+	if !opts.NoPanels {
+		m.packPanels()
 	}
 	if !opts.NoTokenizer && hasTokenizer(dir) {
 		tok, err := tokenize.LoadDir(dir)
@@ -386,6 +398,43 @@ func ignorable(f checkpoint.Family, name string) bool {
 
 // neuronMajor copies an output-major matrix into In×Out storage (the
 // Transposed layout), keeping its dtype.
+// packPanels gives each layer projection and the output head its panel copy,
+// packing the matrices on up to m.threads goroutines. The head gets a copy
+// of its Mat, so a tied embedding table stays without panels (lookups read
+// its rows).
+func (m *Model) packPanels() {
+	var mats []*kernels.Mat
+	for i := range m.layers {
+		L := &m.layers[i]
+		for _, w := range []*kernels.Mat{L.qkv, L.q, L.k, L.v, L.o, L.up, L.gate, L.down} {
+			if w != nil {
+				mats = append(mats, w)
+			}
+		}
+	}
+	head := *m.head
+	m.head = &head
+	mats = append(mats, m.head)
+	panels := make([]*kernels.Panels, len(mats))
+	var next atomic.Int64
+	var wg sync.WaitGroup
+	for range min(m.threads, len(mats)) {
+		wg.Go(func() {
+			for {
+				i := int(next.Add(1)) - 1
+				if i >= len(mats) {
+					return
+				}
+				panels[i] = kernels.PackPanels(mats[i])
+			}
+		})
+	}
+	wg.Wait()
+	for i, w := range mats {
+		w.Panels = panels[i]
+	}
+}
+
 func neuronMajor(w *kernels.Mat) *kernels.Mat {
 	t := &kernels.Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
 	if w.DType == kernels.F32 {

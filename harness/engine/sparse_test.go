@@ -116,3 +116,36 @@ func TestNeuronMajorGivesTheSameBits(t *testing.T) {
 		})
 	}
 }
+
+// The panel copies change memory layout only: decode (single-token steps
+// read the panels), prefill (the GEMM packs from them) and hooked decode
+// with heads dropped (gathers of whole head panels) give the bits of a model
+// loaded without them, on every family and for 1 and 3 threads.
+func TestPanelsGiveTheSameBits(t *testing.T) {
+	for _, f := range families {
+		t.Run(string(f), func(t *testing.T) {
+			plain := tinyModel(t, f, 1, nil)
+			np, err := Load(plain.Dir, Options{Threads: 1, NoPanels: true})
+			require.NoError(t, err)
+			defer np.Close()
+			require.Nil(t, np.head.Panels, "NoPanels left a panel copy on the head")
+			toks := seq(20, 96, 16)
+			h := posHook{heads: np.Config.Heads}
+			want := decodeLogProbs(t, np, toks, nil)
+			wantHooked := decodeLogProbs(t, np, toks, h)
+			wantPrefill, err := np.Forward([]*Session{np.NewSession()}, [][]int{toks}, nil)
+			require.NoError(t, err)
+			for _, threads := range []int{1, 3} {
+				m, err := Load(plain.Dir, Options{Threads: threads})
+				require.NoError(t, err)
+				require.NotNil(t, m.head.Panels, "Load made no panel copy of the head")
+				require.Equal(t, want, decodeLogProbs(t, m, toks, nil))
+				require.Equal(t, wantHooked, decodeLogProbs(t, m, toks, h))
+				got, err := m.Forward([]*Session{m.NewSession()}, [][]int{toks}, nil)
+				require.NoError(t, err)
+				require.Equal(t, wantPrefill, got)
+				m.Close()
+			}
+		})
+	}
+}

@@ -24,6 +24,30 @@ func LinearGather(y, x []float32, w *Mat, bias []float32, idx []int32) {
 	if len(idx) == 0 {
 		return
 	}
+	if w.Panels != nil && hasPanelRun(idx) {
+		var restBuf [gatherJob]int
+		rest := gatherPanels(y, x, w, bias, idx, restBuf[:0])
+		if len(rest) == 0 {
+			return
+		}
+		if len(rest) == len(idx) && !w.Transposed {
+			var buf [gemvBuf]float32
+			rowsDot(y, x, w, bias, buf[:], 0, idx)
+			return
+		}
+		sub := make([]int32, len(rest))
+		for i, r := range rest {
+			sub[i] = idx[r]
+		}
+		part := make([]float32, len(rest))
+		w2 := *w
+		w2.Panels = nil
+		LinearGather(part, x, &w2, bias, sub)
+		for i, r := range rest {
+			y[r] = part[i]
+		}
+		return
+	}
 	if !w.Transposed {
 		var buf [gemvBuf]float32
 		rowsDot(y, x, w, bias, buf[:], 0, idx)
@@ -104,8 +128,15 @@ func scatterBlock(y, h []float32, w *Mat, bias []float32, idx []int32, j0, j1 in
 			off := int(idx[r])*w.Out + j0
 			return w.Half[off : off+width]
 		}
+		for q := range min(8, len(idx)) {
+			prefetchHalf(row(q))
+		}
 		r := 0
 		for ; r+4 <= len(idx); r += 4 { // four rows at a time, same order
+			// The kept rows are scattered: fetch the ones two groups on.
+			for q := r + 8; q < min(r+12, len(idx)); q++ {
+				prefetchHalf(row(q))
+			}
 			alpha := [4]float32{h[r], h[r+1], h[r+2], h[r+3]}
 			x := [4][]uint16{row(r), row(r + 1), row(r + 2), row(r + 3)}
 			axpy4F16Acc(&alpha, &x, acc)

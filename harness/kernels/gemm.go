@@ -114,6 +114,22 @@ func packA(pa, x []float32, k, k0, kc, i0, i1 int) {
 // way. Columns past j1 are zero. conv is scratch of at least max(kc, j1-j0).
 func packB(pb, conv []float32, w *Mat, k0, kc, j0, j1 int) {
 	panels := (j1 - j0 + nr - 1) / nr
+	if w.Panels != nil && nr == PanelRows && j0%PanelRows == 0 {
+		// Each GEMM panel is the k range of one weight panel, contiguous.
+		for p := 0; p < panels; p++ {
+			src := ((j0/PanelRows+p)*w.In + k0) * PanelRows
+			dst := pb[p*nr*kc : (p+1)*nr*kc]
+			switch w.DType {
+			case F32:
+				copy(dst, w.Panels.F32[src:src+kc*PanelRows])
+			case F16:
+				f16ToF32Slice(dst, w.Panels.Half[src:src+kc*PanelRows])
+			default:
+				bf16ToF32Slice(dst, w.Panels.Half[src:src+kc*PanelRows])
+			}
+		}
+		return
+	}
 	if !w.Transposed {
 		// W is Out×In: each output column j is a contiguous run of W's row j.
 		for p := 0; p < panels; p++ {

@@ -98,3 +98,21 @@ axpy4loop:
 axpy4done:
 	VZEROUPPER
 	RET
+
+// func prefetchLines(p unsafe.Pointer, n int)
+//
+// PREFETCHT0 for every 64-byte line of [p, p+n): a hint, never a fault.
+TEXT ·prefetchLines(SB), NOSPLIT, $0-16
+	MOVQ p+0(FP), AX
+	MOVQ n+8(FP), CX
+	ADDQ AX, CX
+
+pfloop:
+	CMPQ       AX, CX
+	JGE        pfdone
+	PREFETCHT0 (AX)
+	ADDQ       $64, AX
+	JMP        pfloop
+
+pfdone:
+	RET

@@ -35,7 +35,9 @@ func linear(s *Scratch, y, x []float32, m int, w *Mat, bias []float32, threads i
 		return
 	}
 	if m == 1 {
-		if w.Transposed {
+		if w.Panels != nil {
+			gemvPanels(y, x, w, bias, threads)
+		} else if w.Transposed {
 			gemvCols(y, x, w, bias, threads)
 		} else {
 			gemvRows(y, x, w, bias, threads)

@@ -7,17 +7,22 @@ package kernels
 // Storage is row-major Out×In, or row-major In×Out when Transposed is true
 // (the fused/Conv1D layout some checkpoints use). Exactly one of F32 (DType
 // F32) or Half (raw IEEE binary16 or bfloat16 bit patterns, DType F16 or
-// BF16) holds Out*In values; the other is empty.
+// BF16) holds Out*In values; the other is empty. Panels, when set, is the
+// same matrix re-laid k-major by PackPanels; the m == 1 path, the gathers
+// over whole panels and the GEMM's packing read it instead, with the same
+// bits.
 type Mat struct {
 	DType      DType
 	Out, In    int
 	Transposed bool
 	F32        []float32
 	Half       []uint16
+	Panels     *Panels
 }
 
 // Check panics with a constant "kernels: " message if the dtype is unknown,
-// a dimension is negative, or the storage length disagrees with Out*In.
+// a dimension is negative, the storage length disagrees with Out*In, or
+// Panels is set but not of the panel layout's length and dtype.
 func (m *Mat) Check() {
 	if m.Out < 0 || m.In < 0 {
 		panic(msgMatShape)
@@ -35,6 +40,7 @@ func (m *Mat) Check() {
 	default:
 		panic(msgMatDType)
 	}
+	m.checkPanels()
 }
 
 // Row sets dst[k] = W[i][k], the logical row i converted to float32, for

@@ -7,6 +7,7 @@ const (
 	msgMatShape    = "kernels: Mat: negative Out or In"
 	msgMatF32Len   = "kernels: Mat: DType F32 needs len(F32) == Out*In and empty Half"
 	msgMatHalfLen  = "kernels: Mat: DType F16/BF16 needs len(Half) == Out*In and empty F32"
+	msgPanelsLen   = "kernels: Mat: Panels must hold the panel layout of the Mat's own shape and dtype (rebuild them with PackPanels)"
 	msgRowIndex    = "kernels: Mat.Row: row index out of range"
 	msgRowLen      = "kernels: Mat.Row: len(dst) != In"
 	msgLinearM     = "kernels: Linear: negative m"

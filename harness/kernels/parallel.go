@@ -25,8 +25,10 @@ func workerCount(threads, nJobs, work int) int {
 }
 
 // runJobs runs jobs 0…nJobs-1 on workers goroutines. Each worker is set up
-// once by newWorker (for its scratch buffers) and then handed job indices
-// until none are left. With one worker it runs in the calling goroutine.
+// once by newWorker (for its scratch buffers) and then takes the next job
+// index until none are left. The calling goroutine is one of the workers, so
+// a call starts working at once and a helper that wakes late only takes the
+// jobs that are left; with one worker everything runs in the caller.
 func runJobs(nJobs, workers int, newWorker func() func(job int)) {
 	if nJobs <= 0 {
 		return
@@ -39,20 +41,20 @@ func runJobs(nJobs, workers int, newWorker func() func(job int)) {
 		return
 	}
 	var next atomic.Int64
-	var wg sync.WaitGroup
-	wg.Add(workers)
-	for range workers {
-		go func() {
-			defer wg.Done()
-			do := newWorker()
-			for {
-				j := int(next.Add(1) - 1)
-				if j >= nJobs {
-					return
-				}
-				do(j)
+	work := func() {
+		do := newWorker()
+		for {
+			j := int(next.Add(1) - 1)
+			if j >= nJobs {
+				return
 			}
-		}()
+			do(j)
+		}
 	}
+	var wg sync.WaitGroup
+	for range workers - 1 {
+		wg.Go(work)
+	}
+	work()
 	wg.Wait()
 }

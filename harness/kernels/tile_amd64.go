@@ -2,7 +2,11 @@
 
 package kernels
 
-import "golang.org/x/sys/cpu"
+import (
+	"unsafe"
+
+	"golang.org/x/sys/cpu"
+)
 
 // Register blocking of the GEMM micro-kernel on amd64: 4 rows of A by 16
 // columns of B, eight 8-wide AVX2 accumulators. The tile shape never changes
@@ -144,3 +148,48 @@ func axpyF16AVX2(alpha float32, x *uint16, y *float32, n int)
 //
 //go:noescape
 func axpyAVX2(alpha float32, x, y *float32, n int)
+
+// prefetchLines asks the CPU to bring every 64-byte line of the n bytes at
+// p into cache (PREFETCHT0; a hint that never faults, half_amd64.s). The
+// scattered-row kernels call it for rows a few steps ahead, whose addresses
+// the hardware prefetchers cannot guess.
+//
+//go:noescape
+func prefetchLines(p unsafe.Pointer, n int)
+
+// prefetchHalf prefetches the stored values s (a hint; s may be empty).
+func prefetchHalf(s []uint16) {
+	if len(s) > 0 {
+		prefetchLines(unsafe.Pointer(&s[0]), 2*len(s))
+	}
+}
+
+// axpyRowsFast runs AxpyRows over the leading lanes of y in blocks of 64,
+// then one of 32, in assembly when the CPU has AVX2, and returns how many
+// lanes it did (the rest are left to the caller).
+func axpyRowsFast(y, alpha, m []float32, stride, off int) int {
+	if !hasAVX2 {
+		return 0
+	}
+	i := 0
+	for ; i+64 <= len(y); i += 64 {
+		axpyRows64AVX2(&y[i], &alpha[0], len(alpha), &m[off+i], 4*stride)
+	}
+	if i+32 <= len(y) {
+		axpyRows32AVX2(&y[i], &alpha[0], len(alpha), &m[off+i], 4*stride)
+		i += 32
+	}
+	return i
+}
+
+// axpyRows64AVX2 does y[i] += alpha[j]·m[j·strideBytes/4 + i] for i < 64,
+// j < rows ascending, skipping alpha[j] == 0 (VMULPS then VADDPS, with y held
+// in eight registers; micro_amd64.s).
+//
+//go:noescape
+func axpyRows64AVX2(y, alpha *float32, rows int, m *float32, strideBytes int)
+
+// axpyRows32AVX2 is axpyRows64AVX2 over 32 lanes.
+//
+//go:noescape
+func axpyRows32AVX2(y, alpha *float32, rows int, m *float32, strideBytes int)

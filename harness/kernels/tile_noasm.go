@@ -63,3 +63,9 @@ func axpy4F16Acc(alpha *[4]float32, x *[4][]uint16, y []float32) {
 		axpyF16Go(alpha[q], x[q], y)
 	}
 }
+
+// prefetchHalf is a cache hint; the portable build has none.
+func prefetchHalf([]uint16) {}
+
+// axpyRowsFast handles no lanes of AxpyRows in the portable build.
+func axpyRowsFast(y, alpha, m []float32, stride, off int) int { return 0 }

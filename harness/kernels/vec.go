@@ -95,3 +95,29 @@ func ReLU(x []float32) {
 		}
 	}
 }
+
+// AxpyRows does y[i] += Σ_j alpha[j]·m[j·stride+off+i] for i < len(y), over
+// j < len(alpha) in ascending order, skipping every j with alpha[j] == 0,
+// each product rounded to float32 before it is added: the bits of calling
+// Axpy(alpha[j], row j, y) for each such j in turn. It serves attention's
+// weighted sum of cached values, whose rows sit stride apart; on amd64 with
+// AVX2 it keeps y in registers across the rows, 64 or 32 lanes at a time.
+func AxpyRows(y, alpha, m []float32, stride, off int) {
+	rows, n := len(alpha), len(y)
+	if rows == 0 || n == 0 {
+		return
+	}
+	if off < 0 || stride < 0 || (rows-1)*stride+off+n > len(m) {
+		panic(msgVecLen)
+	}
+	i := axpyRowsFast(y, alpha, m, stride, off)
+	if i == n {
+		return
+	}
+	for j, a := range alpha {
+		if a != 0 {
+			o := j*stride + off
+			axpyAcc(a, m[o+i:o+n], y[i:])
+		}
+	}
+}

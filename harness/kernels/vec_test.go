@@ -143,3 +143,57 @@ func TestDotStridedIsDot(t *testing.T) {
 		}
 	}
 }
+
+// AxpyRows gives the bits of the Axpy loop it replaces, over lane counts
+// around the 64- and 32-lane assembly blocks, strides wider than a row,
+// alpha with exact zeros of either sign (skipped, so an Inf in a skipped row
+// does not turn into NaN, and -0 in y survives), NaN and Inf alpha, and
+// Inf or NaN in the rows; nothing outside y is written.
+func TestAxpyRowsIsAxpyLoop(t *testing.T) {
+	r := newRand(33)
+	for _, n := range []int{1, 7, 31, 32, 33, 63, 64, 65, 96, 100, 128, 130} {
+		for _, rows := range []int{1, 2, 9, 40} {
+			stride, off := n+3+r.IntN(40), r.IntN(5)
+			m := randVec(r, (rows-1)*stride+off+n+r.IntN(3))
+			alpha := randVec(r, rows)
+			for j := range alpha {
+				switch r.IntN(6) {
+				case 0:
+					alpha[j] = 0
+					m[j*stride+off+r.IntN(n)] = float32(math.Inf(1)) // skipped: must not reach y
+				case 1:
+					alpha[j] = float32(math.Copysign(0, -1))
+				}
+			}
+			if rows > 2 && n%2 == 1 {
+				alpha[1] = float32(math.NaN())
+				m[2*stride+off] = float32(math.Inf(-1))
+			}
+			y0 := randVec(r, n)
+			y0[0] = float32(math.Copysign(0, -1))
+			want := clone32(y0)
+			for j, a := range alpha {
+				if a != 0 {
+					kernels.Axpy(a, m[j*stride+off:j*stride+off+n], want)
+				}
+			}
+			g := newGuarded(n)
+			copy(g.s, y0)
+			kernels.AxpyRows(g.s, alpha, m, stride, off)
+			for i := range want {
+				gb, wb := math.Float32bits(g.s[i]), math.Float32bits(want[i])
+				if gb != wb && !(g.s[i] != g.s[i] && want[i] != want[i]) {
+					t.Fatalf("n=%d rows=%d: y[%d] = %v (%08x), Axpy loop %v (%08x)", n, rows, i, g.s[i], gb, want[i], wb)
+				}
+			}
+			for i, v := range g.buf {
+				if (i < guardPad || i >= guardPad+n) && math.Float32bits(v) != math.Float32bits(sentinelOutside) {
+					t.Fatalf("n=%d rows=%d: guard slot %d written", n, rows, i-guardPad)
+				}
+			}
+		}
+	}
+	mustPanic(t, "AxpyRows past m", "length", func() {
+		kernels.AxpyRows(make([]float32, 4), make([]float32, 2), make([]float32, 7), 4, 0)
+	})
+}

@@ -9,6 +9,7 @@ import (
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/engine"
+	"sparsegate/harness/kernels"
 )
 
 // OpenOptions tune how a build is opened; the zero value is usable.
@@ -27,9 +28,10 @@ type Build struct {
 	// Base is the loaded dense base.
 	Base *engine.Model
 
-	rules []LayerRules // by layer
-	preds map[Unit]*Predictor
-	owns  bool // Close closes Base
+	rules  []LayerRules // by layer
+	preds  map[Unit]*Predictor
+	panels map[Unit][2]*kernels.Panels // each predictor's two matrices, k-major (kernels.PackPanels)
+	owns   bool                        // Close closes Base
 }
 
 // Open reads DIR/manifest.json, checks it against its base checkpoint, loads
@@ -107,7 +109,8 @@ func New(base *engine.Model, m *Manifest, predictors map[Unit]*Predictor) (*Buil
 
 func newBuild(base *engine.Model, m *Manifest, preds map[Unit]*Predictor) (*Build, error) {
 	cfg := base.Config
-	b := &Build{Manifest: m, Base: base, rules: make([]LayerRules, cfg.Layers), preds: map[Unit]*Predictor{}}
+	b := &Build{Manifest: m, Base: base, rules: make([]LayerRules, cfg.Layers), preds: map[Unit]*Predictor{},
+		panels: map[Unit][2]*kernels.Panels{}}
 	for _, lr := range m.Layers {
 		b.rules[lr.Layer] = lr
 	}
@@ -131,6 +134,11 @@ func newBuild(base *engine.Model, m *Manifest, preds map[Unit]*Predictor) (*Buil
 			continue
 		}
 		b.preds[u] = p
+		// The hooks score one token at a time; the panel copies (a second
+		// copy of the predictor's weights) let the single-vector products
+		// stream them, with the same bits.
+		w1, w2 := p.mats()
+		b.panels[u] = [2]*kernels.Panels{kernels.PackPanels(w1), kernels.PackPanels(w2)}
 	}
 	if len(errs) > 0 {
 		return nil, errors.Join(errs...)

@@ -56,10 +56,9 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 				}
 			case PredictorMode:
 				p := b.preds[u]
-				s.pred = &scorer{p: p,
-					w1:    kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1},
-					w2:    kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2},
-					rows1: iota32(p.Rank), all: iota32(p.Out)}
+				w1, w2 := p.mats()
+				w1.Panels, w2.Panels = b.panels[u][0], b.panels[u][1]
+				s.pred = &scorer{p: p, w1: *w1, w2: *w2, rows1: iota32(p.Rank), all: iota32(p.Out)}
 				if len(h.hidden) < p.Rank {
 					h.hidden = make([]float32, p.Rank)
 				}

@@ -49,8 +49,7 @@ func (p *Predictor) Check() error {
 // Scores computes the unit scores for x into dst (len Out); hidden is scratch
 // of len Rank. The arithmetic is the engine's deterministic Linear.
 func (p *Predictor) Scores(dst, hidden, x []float32) {
-	w1 := &kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1}
-	w2 := &kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2}
+	w1, w2 := p.mats()
 	kernels.Linear(hidden, x, 1, w1, p.B1, 1)
 	kernels.ReLU(hidden)
 	kernels.Linear(dst, hidden, 1, w2, p.B2, 1)
@@ -63,4 +62,11 @@ func TopK(dst []int32, scores []float32, k int) []int32 {
 		panic("sparsity: TopK k out of range")
 	}
 	return topKKeys(dst, make([]uint64, 2*len(scores)), scores, k)
+}
+
+// mats views the predictor's two layers as weight matrices: W1 Rank×In and
+// W2 Out×Rank.
+func (p *Predictor) mats() (w1, w2 *kernels.Mat) {
+	return &kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1},
+		&kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2}
 }

@@ -110,8 +110,12 @@ var benchShapes = [][3]int{
 // BenchmarkGemmVsOpenBLAS runs the project's kernels.Gemm and OpenBLAS's
 // cblas_sgemm alternately on the same inputs, both on 2 threads, swapping
 // which goes first every iteration, and reports each side's GFLOPS from the
-// median of its timings and their ratio (ours/OpenBLAS). Read it with
-// -benchtime Nx: each iteration runs both.
+// median of its timings and their ratio (ours/OpenBLAS). It also times, in
+// the same rotation, the product the engine runs on its weights: the same B
+// as a kernels.Mat carrying its panel copy (kernels.PackPanels, made once
+// as the engine does at load, outside the timing), reported as
+// prepacked-GFLOPS and prepacked-ratio. Read it with -benchtime Nx: each
+// iteration runs all three.
 func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 	SetThreads(threads)
 	if got := Threads(); got != threads {
@@ -123,12 +127,20 @@ func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 		b.Run(fmt.Sprintf("%dx%dx%d", m, k, n), func(b *testing.B) {
 			r := rand.New(rand.NewPCG(5, 6))
 			a, bb := randMat(r, m*k), randMat(r, k*n)
-			c1, c2 := make([]float32, m*n), make([]float32, m*n)
+			c1, c2, c3 := make([]float32, m*n), make([]float32, m*n), make([]float32, m*n)
 			ours := func() { kernels.Gemm(c1, a, bb, m, k, n, threads) }
 			ref := func() { Sgemm(c2, a, bb, m, k, n) }
+			w := &kernels.Mat{DType: kernels.F32, Out: n, In: k, Transposed: true, F32: bb}
+			w.Panels = kernels.PackPanels(w)
+			var s kernels.Scratch
+			packed := func() { s.Linear(c3, a, m, w, nil, threads) }
 			ours() // warm-up: caches, OpenBLAS's thread pool
 			ref()
-			var to, tr []time.Duration
+			packed()
+			if !slices.Equal(c1, c3) {
+				b.Fatal("the pre-packed product differs from kernels.Gemm")
+			}
+			var to, tr, tp []time.Duration
 			timed := func(f func()) time.Duration {
 				t0 := time.Now()
 				f()
@@ -139,7 +151,9 @@ func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 				if i%2 == 0 {
 					to = append(to, timed(ours))
 					tr = append(tr, timed(ref))
+					tp = append(tp, timed(packed))
 				} else {
+					tp = append(tp, timed(packed))
 					tr = append(tr, timed(ref))
 					to = append(to, timed(ours))
 				}
@@ -147,9 +161,12 @@ func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 			b.StopTimer()
 			flop := 2 * float64(m) * float64(k) * float64(n)
 			go1, gr := flop/median(to).Seconds()/1e9, flop/median(tr).Seconds()/1e9
+			gp := flop / median(tp).Seconds() / 1e9
 			b.ReportMetric(go1, "ours-GFLOPS")
 			b.ReportMetric(gr, "openblas-GFLOPS")
 			b.ReportMetric(go1/gr, "ratio")
+			b.ReportMetric(gp, "prepacked-GFLOPS")
+			b.ReportMetric(gp/gr, "prepacked-ratio")
 		})
 	}
 }

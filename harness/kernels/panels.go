@@ -1,0 +1,222 @@
+package kernels
+
+// PanelRows is the number of logical rows a weight panel holds. It equals the
+// width of the AVX2 GEMM micro-tile (nr), so a panel is also the packed form
+// the GEMM reads for those sixteen output columns.
+const PanelRows = 16
+
+// Panels is a k-major copy of a weight matrix in its stored dtype: the
+// logical rows (outputs) are grouped in panels of PanelRows, and panel p
+// holds W[PanelRows·p+i][k] at element (p·In+k)·PanelRows+i. Rows past Out
+// in the last panel are zero. Reading a panel is one contiguous stream with
+// sixteen outputs per k, so the m == 1 path accumulates sixteen rows per
+// vector lane group without the transposes the Out×In layout needs, and the
+// GEMM packs a panel by converting it in one pass. It costs one more copy of
+// the matrix (see PackPanels); results are the same bits with or without it.
+type Panels struct {
+	F32  []float32 // DType F32
+	Half []uint16  // DType F16 or BF16: stored bit patterns
+}
+
+// panelCount is the number of panels that hold out rows.
+func panelCount(out int) int { return (out + PanelRows - 1) / PanelRows }
+
+// PanelBytes is the size of w's panel copy in bytes.
+func PanelBytes(w *Mat) int64 {
+	n := int64(panelCount(w.Out)) * int64(w.In) * PanelRows
+	if w.DType == F32 {
+		return 4 * n
+	}
+	return 2 * n
+}
+
+// PackPanels returns the k-major panel copy of w, in w's stored dtype (no
+// value is converted). w may be stored Out×In or Transposed; w.Panels is
+// ignored and left as it is.
+func PackPanels(w *Mat) *Panels {
+	w.Check()
+	np, in := panelCount(w.Out), w.In
+	n := np * in * PanelRows
+	p := new(Panels)
+	if w.DType == F32 {
+		p.F32 = make([]float32, n)
+	} else {
+		p.Half = make([]uint16, n)
+	}
+	for j := 0; j < w.Out; j++ {
+		base := (j/PanelRows*in)*PanelRows + j%PanelRows
+		for k := 0; k < in; k++ {
+			src := j*in + k
+			if w.Transposed {
+				src = k*w.Out + j
+			}
+			if w.DType == F32 {
+				p.F32[base+k*PanelRows] = w.F32[src]
+			} else {
+				p.Half[base+k*PanelRows] = w.Half[src]
+			}
+		}
+	}
+	return p
+}
+
+// checkPanels panics unless w.Panels, when set, holds exactly the values
+// of w's panel layout in w's dtype.
+func (m *Mat) checkPanels() {
+	p := m.Panels
+	if p == nil {
+		return
+	}
+	n := panelCount(m.Out) * m.In * PanelRows
+	if m.DType == F32 {
+		if len(p.F32) != n || len(p.Half) != 0 {
+			panic(msgPanelsLen)
+		}
+		return
+	}
+	if len(p.Half) != n || len(p.F32) != 0 {
+		panic(msgPanelsLen)
+	}
+}
+
+// panelGroup is how many panels one call of the panel kernel advances.
+const panelGroup = 4
+
+// panelDot4Go sets acc[PanelRows·q+i] = Σ_k x[k]·P[k][i] for the panel
+// P = panels[q] of w, q < panelGroup, k ascending from 0 with each product
+// rounded to float32 before it is added: per output the same order and
+// rounding as the row-dot path. It is the portable twin of the assembly
+// panel kernels.
+func panelDot4Go(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int) {
+	in := w.In
+	var buf [PanelRows]float32
+	for q, p := range panels {
+		a := (*[PanelRows]float32)(acc[q*PanelRows : (q+1)*PanelRows])
+		*a = [PanelRows]float32{}
+		off := p * in * PanelRows
+		for k, xv := range x {
+			row := buf[:]
+			o := off + k*PanelRows
+			switch w.DType {
+			case F32:
+				row = w.Panels.F32[o : o+PanelRows]
+			case F16:
+				f16ToF32Go(row, w.Panels.Half[o:o+PanelRows])
+			default:
+				bf16ToF32Slice(row, w.Panels.Half[o:o+PanelRows])
+			}
+			for i := range a {
+				a[i] += float32(xv * row[i])
+			}
+		}
+	}
+}
+
+// panelRows computes out[r] = bias[row] + Σ_k x[k]·W[row][k] for the rows
+// of the listed panels, panel list[g] giving out[PanelRows·g : …] (the
+// rows of the last panel that lie past w.Out are not written; out is cut
+// to the rows that exist). Panels go panelGroup at a time; a short last
+// group repeats its final panel, whose extra results are dropped.
+func panelRows(out, x []float32, w *Mat, bias []float32, list []int) {
+	var acc [panelGroup * PanelRows]float32
+	for g0 := 0; g0 < len(list); g0 += panelGroup {
+		var ps [panelGroup]int
+		for q := range ps {
+			ps[q] = list[min(g0+q, len(list)-1)]
+		}
+		panelDot4(&acc, x, w, &ps)
+		for q := 0; q < panelGroup && g0+q < len(list); q++ {
+			row0 := ps[q] * PanelRows
+			for i := range PanelRows {
+				r := (g0+q)*PanelRows + i
+				if r >= len(out) || row0+i >= w.Out {
+					break
+				}
+				v := acc[q*PanelRows+i]
+				if bias != nil {
+					v += bias[row0+i]
+				}
+				out[r] = v
+			}
+		}
+	}
+}
+
+// gemvPanels is the m == 1 Linear over w's panels: jobs of panelGroup
+// panels, each output computed by one job alone, so the bits do not depend
+// on threads.
+func gemvPanels(y, x []float32, w *Mat, bias []float32, threads int) {
+	np := panelCount(w.Out)
+	nJobs := (np + panelGroup - 1) / panelGroup
+	workers := workerCount(threads, nJobs, w.Out*w.In)
+	runJobs(nJobs, workers, func() func(int) {
+		var list [panelGroup]int
+		return func(job int) {
+			p0 := job * panelGroup
+			p1 := min(p0+panelGroup, np)
+			for q := p0; q < p1; q++ {
+				list[q-p0] = q
+			}
+			j0 := p0 * PanelRows
+			panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, list[:p1-p0])
+		}
+	})
+}
+
+// gatherPanels computes LinearGather's y for the idx entries that cover
+// whole panels (sixteen consecutive rows starting at a multiple of
+// PanelRows) from w's panels, and returns the positions r of the entries it
+// did not cover, for the row-dot path. idx is strictly ascending.
+func gatherPanels(y, x []float32, w *Mat, bias []float32, idx []int32, rest []int) []int {
+	var list [panelGroup]int
+	var at [panelGroup]int // position in idx of each listed panel
+	n := 0
+	var acc [PanelRows * panelGroup]float32
+	flush := func() {
+		if n == 0 {
+			return
+		}
+		for q := n; q < panelGroup; q++ {
+			list[q] = list[n-1]
+		}
+		panelDot4(&acc, x, w, &list)
+		for q := range n {
+			for i := range PanelRows {
+				v := acc[q*PanelRows+i]
+				if bias != nil {
+					v += bias[list[q]*PanelRows+i]
+				}
+				y[at[q]+i] = v
+			}
+		}
+		n = 0
+	}
+	for r := 0; r < len(idx); {
+		j := int(idx[r])
+		if j%PanelRows == 0 && r+PanelRows <= len(idx) && int(idx[r+PanelRows-1]) == j+PanelRows-1 {
+			list[n], at[n] = j/PanelRows, r
+			n++
+			if n == panelGroup {
+				flush()
+			}
+			r += PanelRows
+			continue
+		}
+		rest = append(rest, r)
+		r++
+	}
+	flush()
+	return rest
+}
+
+// hasPanelRun reports whether the strictly ascending idx covers at least
+// one whole panel.
+func hasPanelRun(idx []int32) bool {
+	for r := 0; r+PanelRows <= len(idx); r++ {
+		j := idx[r]
+		if j%PanelRows == 0 && idx[r+PanelRows-1] == j+PanelRows-1 {
+			return true
+		}
+	}
+	return false
+}

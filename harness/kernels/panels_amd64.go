@@ -1,0 +1,59 @@
+//go:build amd64 && !noasm
+
+package kernels
+
+// panelDot4 sets acc[PanelRows·q+i] = Σ_k x[k]·P[k][i] over the panels
+// P = panels[q] of w (len(x) == w.In), k ascending, each product rounded to
+// float32 before it is added: panelDot4Go's bits. With AVX2 (and F16C for
+// binary16) the loop runs in assembly, sixteen outputs per panel in two
+// vectors, eight independent accumulators in all.
+func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int) {
+	n := len(x)
+	if n == 0 || !gemvAsm(w.DType) {
+		panelDot4Go(acc, x, w, panels)
+		return
+	}
+	span := n * PanelRows
+	*acc = [panelGroup * PanelRows]float32{}
+	if w.DType == F32 {
+		var p [panelGroup]*float32
+		for q, pn := range panels {
+			p[q] = &w.Panels.F32[pn*span : (pn+1)*span][0]
+		}
+		panelDot4F32AVX2(&p, &x[0], n, acc)
+		return
+	}
+	var p [panelGroup]*uint16
+	for q, pn := range panels {
+		p[q] = &w.Panels.Half[pn*span : (pn+1)*span][0]
+	}
+	if w.DType == F16 {
+		panelDot4F16AVX2(&p, &x[0], n, acc)
+	} else {
+		panelDot4BF16AVX2(&p, &x[0], n, acc)
+	}
+}
+
+// panelKernel names the panel kernel used for w's dtype.
+func panelKernel(dt DType) string {
+	if gemvAsm(dt) {
+		return "avx2 4-panel"
+	}
+	return "go 4-panel"
+}
+
+// panelDot4F32AVX2 advances acc[16q+i] by Σ_{k<n} x[k]·p[q][16k+i]
+// (VMULPS then VADDPS per lane), n > 0 (panels_amd64.s).
+//
+//go:noescape
+func panelDot4F32AVX2(p *[panelGroup]*float32, x *float32, n int, acc *[panelGroup * PanelRows]float32)
+
+// panelDot4F16AVX2 is panelDot4F32AVX2 over binary16 panels (VCVTPH2PS).
+//
+//go:noescape
+func panelDot4F16AVX2(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGroup * PanelRows]float32)
+
+// panelDot4BF16AVX2 is panelDot4F32AVX2 over bfloat16 panels (widened by a shift).
+//
+//go:noescape
+func panelDot4BF16AVX2(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGroup * PanelRows]float32)

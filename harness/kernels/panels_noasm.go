@@ -1,0 +1,12 @@
+//go:build !amd64 || noasm
+
+package kernels
+
+// panelDot4 sets acc[PanelRows·q+i] = Σ_k x[k]·P[k][i] over the panels
+// P = panels[q] of w, k ascending, each product rounded before it is added.
+func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int) {
+	panelDot4Go(acc, x, w, panels)
+}
+
+// panelKernel names the panel kernel used for w's dtype.
+func panelKernel(DType) string { return "go 4-panel" }
