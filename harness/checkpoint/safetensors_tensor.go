@@ -4,7 +4,10 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"os"
 	"unsafe"
+
+	"golang.org/x/sys/unix"
 )
 
 // Tensor is one named tensor of an open File: its dtype, shape and bytes.
@@ -145,4 +148,25 @@ func (t *Tensor) NonFinite() (count int, first int) {
 func hostLittleEndian() bool {
 	x := uint16(1)
 	return *(*byte)(unsafe.Pointer(&x)) == 1
+}
+
+// Release tells the operating system that the tensor's bytes are not needed
+// for now (madvise MADV_DONTNEED on the whole pages inside them): the
+// process's resident memory drops by about their size, and a later read
+// brings the pages back from the file, unchanged (the mapping is read-only
+// and shared, so nothing is lost). The engine calls it after copying a
+// matrix into its panel layout. Errors are ignored: it is only advice.
+func (t *Tensor) Release() {
+	d := t.data
+	if len(d) == 0 {
+		return
+	}
+	page := os.Getpagesize()
+	start := int(uintptr(unsafe.Pointer(&d[0])) % uintptr(page))
+	lo := (page - start) % page        // first whole page inside d
+	hi := len(d) - (start+len(d))%page // end of the last whole page
+	if hi-lo < page {
+		return
+	}
+	_ = unix.Madvise(d[lo:hi], unix.MADV_DONTNEED)
 }

@@ -39,7 +39,8 @@ type Model struct {
 	head   *kernels.Mat // output head, V×d (the embedding when tied)
 	rope   []float32    // inverse frequencies (Llama)
 
-	scratch *kernels.Scratch // the products' packing buffers, reused across calls
+	scratch *kernels.Scratch                    // the products' packing buffers, reused across calls
+	sources map[*kernels.Mat]*checkpoint.Tensor // the tensor each matrix was bound from, until Load returns
 }
 
 // layer holds one decoder block's weights. For GPT-2, qkv is the fused
@@ -111,6 +112,7 @@ func Load(dir string, opts Options) (*Model, error) {
 	if !opts.NoPanels {
 		m.packPanels()
 	}
+	m.sources = nil
 	if !opts.NoTokenizer && hasTokenizer(dir) {
 		tok, err := tokenize.LoadDir(dir)
 		if err != nil {
@@ -165,10 +167,11 @@ func (m *Model) Threads() int { return m.threads }
 // binder resolves layout names to tensors, accepting the name prefixes that
 // open checkpoints of each family use, and records which tensors it used.
 type binder struct {
-	w      *checkpoint.Weights
-	prefix string // prepended to layout names in this checkpoint
-	used   map[string]bool
-	errs   []string
+	w       *checkpoint.Weights
+	prefix  string // prepended to layout names in this checkpoint
+	used    map[string]bool
+	errs    []string
+	sources map[*kernels.Mat]*checkpoint.Tensor // each bound matrix's tensor
 }
 
 func (b *binder) tensor(name string, shape ...int) *checkpoint.Tensor {
@@ -200,6 +203,7 @@ func (b *binder) mat(name string, transposed bool, shape ...int) *kernels.Mat {
 		return nil
 	}
 	m := &kernels.Mat{Out: shape[0], In: shape[1], Transposed: transposed}
+	b.sources[m] = t
 	if transposed {
 		m.Out, m.In = shape[1], shape[0]
 	}
@@ -285,7 +289,8 @@ func detectPrefix(cfg *checkpoint.Config, w *checkpoint.Weights) string {
 // bind resolves every tensor of the layout and reports all problems at once.
 func (m *Model) bind() error {
 	cfg := m.Config
-	b := &binder{w: m.weights, used: map[string]bool{}}
+	b := &binder{w: m.weights, used: map[string]bool{}, sources: map[*kernels.Mat]*checkpoint.Tensor{}}
+	defer func() { m.sources = b.sources }()
 	b.prefix = detectPrefix(cfg, m.weights)
 	d, f, v := cfg.Hidden, cfg.FFN, cfg.VocabSize
 	m.layers = make([]layer, cfg.Layers)
@@ -401,7 +406,11 @@ func ignorable(f checkpoint.Family, name string) bool {
 // packPanels gives each layer projection and the output head its panel copy,
 // packing the matrices on up to m.threads goroutines. The head gets a copy
 // of its Mat, so a tied embedding table stays without panels (lookups read
-// its rows).
+// its rows). After packing a matrix it releases the mapped pages it read
+// (checkpoint.Tensor.Release), so that resident memory holds about one copy
+// of the weights rather than two; whatever still reads the stored layout (an
+// embedding row, a sparse MLP's gathered rows) brings its pages back from
+// the file.
 func (m *Model) packPanels() {
 	var mats []*kernels.Mat
 	for i := range m.layers {
@@ -413,6 +422,7 @@ func (m *Model) packPanels() {
 		}
 	}
 	head := *m.head
+	m.sources[&head] = m.sources[m.head]
 	m.head = &head
 	mats = append(mats, m.head)
 	panels := make([]*kernels.Panels, len(mats))
@@ -426,6 +436,9 @@ func (m *Model) packPanels() {
 					return
 				}
 				panels[i] = kernels.PackPanels(mats[i])
+				if t := m.sources[mats[i]]; t != nil {
+					t.Release()
+				}
 			}
 		})
 	}
