@@ -136,10 +136,11 @@ func argmax(x []float32) int {
 	return best
 }
 
-// BenchmarkEngineLoadRSS loads the model, runs one short sequence so every
-// weight page is touched, and reports the process's resident memory (VmRSS)
-// beside the weights' size on disk: mapped f16 weights should keep it near
-// the file size, not twice it.
+// BenchmarkEngineLoadRSS loads the model, runs one short sequence, and
+// reports the process's resident memory (VmRSS) beside the weights' size on
+// disk: f16 weights stay f16, and Load releases each matrix's mapped pages
+// once its panel copy is made, so it should stay near the file size, not
+// twice it.
 func BenchmarkEngineLoadRSS(b *testing.B) {
 	for range b.N {
 		m, err := Load(benchDir(b), Options{Threads: 2})

@@ -81,9 +81,10 @@ func predictorBuild(b *testing.B, m *engine.Model, keepMLP, keepHeads float64) *
 	return bld
 }
 
-// BenchmarkMLPBlockDecode times one token through one layer's MLP block:
-// dense (up, ReLU, down) against a predictor keeping 10% of the neurons
-// (predictor scores, top-k, gathered up rows, scattered down columns).
+// BenchmarkMLPBlockDecode times one token through one layer's MLP block on
+// one thread: dense (up, ReLU, down, on the panel copies the engine makes)
+// against a predictor keeping 10% of the neurons (predictor scores, top-k,
+// gathered up rows, scattered down columns).
 func BenchmarkMLPBlockDecode(b *testing.B) {
 	m := benchModel(b)
 	cfg := m.Config
@@ -111,6 +112,9 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 			downT.Half[k*cfg.Hidden+j] = down.Half[j*cfg.FFN+k]
 		}
 	}
+	// The dense block runs as the engine runs it: on the panel copies
+	// engine.Load makes (the sparse block's scattered rows do not use them).
+	up.Panels, down.Panels = kernels.PackPanels(up), kernels.PackPanels(down)
 	hid, y := make([]float32, cfg.FFN), make([]float32, cfg.Hidden)
 	b.Run("dense", func(b *testing.B) {
 		for range b.N {
