@@ -401,8 +401,6 @@ func ignorable(f checkpoint.Family, name string) bool {
 	return false
 }
 
-// neuronMajor copies an output-major matrix into In×Out storage (the
-// Transposed layout), keeping its dtype.
 // packPanels gives each layer projection and the output head its panel copy,
 // packing the matrices on up to m.threads goroutines. The head gets a copy
 // of its Mat, so a tied embedding table stays without panels (lookups read
@@ -448,6 +446,8 @@ func (m *Model) packPanels() {
 	}
 }
 
+// neuronMajor copies an output-major matrix into In×Out storage (the
+// Transposed layout), keeping its dtype.
 func neuronMajor(w *kernels.Mat) *kernels.Mat {
 	t := &kernels.Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
 	if w.DType == kernels.F32 {
