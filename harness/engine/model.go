@@ -423,6 +423,8 @@ func (m *Model) packPanels() {
 	m.sources[&head] = m.sources[m.head]
 	m.head = &head
 	mats = append(mats, m.head)
+	// Matrices differ in size (the head is a third of OPT-125M), so workers
+	// take the next matrix as they finish rather than fixed shares.
 	panels := make([]*kernels.Panels, len(mats))
 	var next atomic.Int64
 	var wg sync.WaitGroup

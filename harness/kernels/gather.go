@@ -25,14 +25,10 @@ func LinearGather(y, x []float32, w *Mat, bias []float32, idx []int32) {
 		return
 	}
 	if w.Panels != nil && hasPanelRun(idx) {
-		var restBuf [gatherJob]int
-		rest := gatherPanels(y, x, w, bias, idx, restBuf[:0])
+		// Whole panels (a kept head's rows) come from the panels; any other
+		// rows go through the stored layout as a smaller gather.
+		rest := gatherPanels(y, x, w, bias, idx, nil)
 		if len(rest) == 0 {
-			return
-		}
-		if len(rest) == len(idx) && !w.Transposed {
-			var buf [gemvBuf]float32
-			rowsDot(y, x, w, bias, buf[:], 0, idx)
 			return
 		}
 		sub := make([]int32, len(rest))

@@ -2,6 +2,46 @@
 
 #include "textflag.h"
 
+// ROWSTART loads AxpyRows' arguments: DI = y, SI = alpha, CX = rows,
+// DX = the first row, R8 = the row stride in bytes; X15 = 0.
+#define ROWSTART \
+	MOVQ   y+0(FP), DI; \
+	MOVQ   alpha+8(FP), SI; \
+	MOVQ   rows+16(FP), CX; \
+	MOVQ   m+24(FP), DX; \
+	MOVQ   strideBytes+32(FP), R8; \
+	VXORPS X15, X15, X15
+
+// ROWSKIP jumps to SKIP when alpha[j] (at SI) is zero of either sign, as the
+// Axpy loop AxpyRows replaces skips such a row; NaN is not zero (UCOMISS sets
+// PF) and goes on to APPLY, as every other value does. APPLY is the label
+// that follows, where alpha[j] is broadcast into Y8.
+#define ROWSKIP(APPLY, SKIP) \
+	VMOVSS       (SI), X8; \
+	VUCOMISS     X15, X8; \
+	JNE          APPLY; \
+	JP           APPLY; \
+	JMP          SKIP
+
+// ROWMAC4 adds float32(alpha[j]·row[OFF/4 … OFF/4+31]) to A0 … A3 (VMULPS,
+// then VADDPS).
+#define ROWMAC4(OFF, A0, A1, A2, A3) \
+	VMULPS OFF+0(DX), Y8, Y9; \
+	VMULPS OFF+32(DX), Y8, Y10; \
+	VMULPS OFF+64(DX), Y8, Y11; \
+	VMULPS OFF+96(DX), Y8, Y12; \
+	VADDPS Y9, A0, A0; \
+	VADDPS Y10, A1, A1; \
+	VADDPS Y11, A2, A2; \
+	VADDPS Y12, A3, A3
+
+// ROWNEXT moves to the next row and loops to TOP while rows remain.
+#define ROWNEXT(TOP) \
+	ADDQ $4, SI; \
+	ADDQ R8, DX; \
+	DECQ CX; \
+	JNZ  TOP
+
 // func gemmMicroAVX2(kc int, a, b *float32, c *[64]float32)
 //
 // For kk < kc, ascending: c[i*16+j] += a[kk*4+i]·b[kk*16+j], the product
@@ -87,16 +127,9 @@ axpydone:
 
 // func axpyRows64AVX2(y, alpha *float32, rows int, m *float32, strideBytes int)
 //
-// y[0..63] lives in Y0 … Y7 across the rows. For each row j: if alpha[j] is
-// zero (either sign) the row is skipped, as the Axpy loop it replaces skips
-// it; otherwise y += float32(alpha[j]·row), VMULPS then VADDPS. NaN alpha
-// is not zero (UCOMISS sets PF) and is applied.
+// y[0..63] lives in Y0 … Y7 across the rows.
 TEXT ·axpyRows64AVX2(SB), NOSPLIT, $0-40
-	MOVQ    y+0(FP), DI
-	MOVQ    alpha+8(FP), SI
-	MOVQ    rows+16(FP), CX
-	MOVQ    m+24(FP), DX
-	MOVQ    strideBytes+32(FP), R8
+	ROWSTART
 	VMOVUPS 0(DI), Y0
 	VMOVUPS 32(DI), Y1
 	VMOVUPS 64(DI), Y2
@@ -105,40 +138,17 @@ TEXT ·axpyRows64AVX2(SB), NOSPLIT, $0-40
 	VMOVUPS 160(DI), Y5
 	VMOVUPS 192(DI), Y6
 	VMOVUPS 224(DI), Y7
-	VXORPS  X15, X15, X15
 
 rows64:
-	VMOVSS       (SI), X8
-	VUCOMISS     X15, X8
-	JNE          apply64
-	JP           apply64
-	JMP          next64
+	ROWSKIP(apply64, next64)
 
 apply64:
 	VBROADCASTSS (SI), Y8
-	VMULPS       0(DX), Y8, Y9
-	VMULPS       32(DX), Y8, Y10
-	VMULPS       64(DX), Y8, Y11
-	VMULPS       96(DX), Y8, Y12
-	VADDPS       Y9, Y0, Y0
-	VADDPS       Y10, Y1, Y1
-	VADDPS       Y11, Y2, Y2
-	VADDPS       Y12, Y3, Y3
-	VMULPS       128(DX), Y8, Y9
-	VMULPS       160(DX), Y8, Y10
-	VMULPS       192(DX), Y8, Y11
-	VMULPS       224(DX), Y8, Y12
-	VADDPS       Y9, Y4, Y4
-	VADDPS       Y10, Y5, Y5
-	VADDPS       Y11, Y6, Y6
-	VADDPS       Y12, Y7, Y7
+	ROWMAC4(0, Y0, Y1, Y2, Y3)
+	ROWMAC4(128, Y4, Y5, Y6, Y7)
 
 next64:
-	ADDQ $4, SI
-	ADDQ R8, DX
-	DECQ CX
-	JNZ  rows64
-
+	ROWNEXT(rows64)
 	VMOVUPS Y0, 0(DI)
 	VMOVUPS Y1, 32(DI)
 	VMOVUPS Y2, 64(DI)
@@ -151,42 +161,24 @@ next64:
 	RET
 
 // func axpyRows32AVX2(y, alpha *float32, rows int, m *float32, strideBytes int)
+//
+// y[0..31] lives in Y0 … Y3 across the rows.
 TEXT ·axpyRows32AVX2(SB), NOSPLIT, $0-40
-	MOVQ    y+0(FP), DI
-	MOVQ    alpha+8(FP), SI
-	MOVQ    rows+16(FP), CX
-	MOVQ    m+24(FP), DX
-	MOVQ    strideBytes+32(FP), R8
+	ROWSTART
 	VMOVUPS 0(DI), Y0
 	VMOVUPS 32(DI), Y1
 	VMOVUPS 64(DI), Y2
 	VMOVUPS 96(DI), Y3
-	VXORPS  X15, X15, X15
 
 rows32:
-	VMOVSS       (SI), X8
-	VUCOMISS     X15, X8
-	JNE          apply32
-	JP           apply32
-	JMP          next32
+	ROWSKIP(apply32, next32)
 
 apply32:
 	VBROADCASTSS (SI), Y8
-	VMULPS       0(DX), Y8, Y9
-	VMULPS       32(DX), Y8, Y10
-	VMULPS       64(DX), Y8, Y11
-	VMULPS       96(DX), Y8, Y12
-	VADDPS       Y9, Y0, Y0
-	VADDPS       Y10, Y1, Y1
-	VADDPS       Y11, Y2, Y2
-	VADDPS       Y12, Y3, Y3
+	ROWMAC4(0, Y0, Y1, Y2, Y3)
 
 next32:
-	ADDQ $4, SI
-	ADDQ R8, DX
-	DECQ CX
-	JNZ  rows32
-
+	ROWNEXT(rows32)
 	VMOVUPS Y0, 0(DI)
 	VMOVUPS Y1, 32(DI)
 	VMOVUPS Y2, 64(DI)

@@ -59,73 +59,69 @@
 	VADDPS H0, A0, A0; \
 	VADDPS H1, A1, A1
 
-// func panelDot4F32AVX2(p *[4]*float32, x *float32, n int, acc *[64]float32)
-TEXT ·panelDot4F32AVX2(SB), NOSPLIT, $0-32
-	LOADPANELS
+// PANELSTEP advances the accumulators by one k: it prefetches each stream
+// 2048 bytes ahead, broadcasts x[k] into Y8, widens each panel's sixteen
+// weights with LOAD (two vectors, the second HALF bytes on), multiplies and
+// adds them (MACPAIR), then moves DX on by STEP bytes (one panel row).
+#define PANELSTEP(LOAD, HALF, STEP) \
+	PREFETCHT0   2048(AX)(DX*1); \
+	PREFETCHT0   2048(BX)(DX*1); \
+	PREFETCHT0   2048(R8)(DX*1); \
+	PREFETCHT0   2048(R9)(DX*1); \
+	VBROADCASTSS (SI)(DI*4), Y8; \
+	LOAD(0(AX)(DX*1), Y9); \
+	LOAD(HALF(AX)(DX*1), Y10); \
+	LOAD(0(BX)(DX*1), Y11); \
+	LOAD(HALF(BX)(DX*1), Y12); \
+	MACPAIR(Y9, Y10, Y0, Y1); \
+	MACPAIR(Y11, Y12, Y2, Y3); \
+	LOAD(0(R8)(DX*1), Y9); \
+	LOAD(HALF(R8)(DX*1), Y10); \
+	LOAD(0(R9)(DX*1), Y11); \
+	LOAD(HALF(R9)(DX*1), Y12); \
+	MACPAIR(Y9, Y10, Y4, Y5); \
+	MACPAIR(Y11, Y12, Y6, Y7); \
+	ADDQ         $STEP, DX
 
-f32loop:
-	PREFETCHT0   2048(AX)(DX*1)
-	PREFETCHT0   2048(BX)(DX*1)
-	PREFETCHT0   2048(R8)(DX*1)
-	PREFETCHT0   2048(R9)(DX*1)
-	VBROADCASTSS (SI)(DI*4), Y8
-	VMOVUPS      0(AX)(DX*1), Y9
-	VMOVUPS      32(AX)(DX*1), Y10
-	VMOVUPS      0(BX)(DX*1), Y11
-	VMOVUPS      32(BX)(DX*1), Y12
-	MACPAIR(Y9, Y10, Y0, Y1)
-	MACPAIR(Y11, Y12, Y2, Y3)
-	VMOVUPS      0(R8)(DX*1), Y9
-	VMOVUPS      32(R8)(DX*1), Y10
-	VMOVUPS      0(R9)(DX*1), Y11
-	VMOVUPS      32(R9)(DX*1), Y12
-	MACPAIR(Y9, Y10, Y4, Y5)
-	MACPAIR(Y11, Y12, Y6, Y7)
-	ADDQ         $64, DX
-	INCQ         DI
-	CMPQ         DI, CX
-	JLT          f32loop
+// F32PANEL loads eight float32 weights at M into R.
+#define F32PANEL(M, R) VMOVUPS M, R
 
-	STOREPANELS
-	RET
-
-// func panelDot4F16AVX2(p *[4]*uint16, x *float32, n int, acc *[64]float32)
-//
-// The panels hold binary16 bit patterns, widened exactly by VCVTPH2PS (F16C).
-TEXT ·panelDot4F16AVX2(SB), NOSPLIT, $0-32
-	LOADPANELS
-
-f16loop:
-	PREFETCHT0   2048(AX)(DX*1)
-	PREFETCHT0   2048(BX)(DX*1)
-	PREFETCHT0   2048(R8)(DX*1)
-	PREFETCHT0   2048(R9)(DX*1)
-	VBROADCASTSS (SI)(DI*4), Y8
-	VCVTPH2PS    0(AX)(DX*1), Y9
-	VCVTPH2PS    16(AX)(DX*1), Y10
-	VCVTPH2PS    0(BX)(DX*1), Y11
-	VCVTPH2PS    16(BX)(DX*1), Y12
-	MACPAIR(Y9, Y10, Y0, Y1)
-	MACPAIR(Y11, Y12, Y2, Y3)
-	VCVTPH2PS    0(R8)(DX*1), Y9
-	VCVTPH2PS    16(R8)(DX*1), Y10
-	VCVTPH2PS    0(R9)(DX*1), Y11
-	VCVTPH2PS    16(R9)(DX*1), Y12
-	MACPAIR(Y9, Y10, Y4, Y5)
-	MACPAIR(Y11, Y12, Y6, Y7)
-	ADDQ         $32, DX
-	INCQ         DI
-	CMPQ         DI, CX
-	JLT          f16loop
-
-	STOREPANELS
-	RET
+// F16PANEL widens eight binary16 patterns at M into R, exactly (F16C).
+#define F16PANEL(M, R) VCVTPH2PS M, R
 
 // BF16PANEL widens eight bfloat16 patterns at M into the float32 lanes of R:
 // zero-extend to 32 bits, then shift into the upper half (exact).
 #define BF16PANEL(M, R) \
 	VPMOVZXWD M, R; \
 	VPSLLD    $16, R, R
+
+// func panelDot4F32AVX2(p *[4]*float32, x *float32, n int, acc *[64]float32)
+TEXT ·panelDot4F32AVX2(SB), NOSPLIT, $0-32
+	LOADPANELS
+
+f32loop:
+	PANELSTEP(F32PANEL, 32, 64)
+	INCQ DI
+	CMPQ DI, CX
+	JLT  f32loop
+
+	STOREPANELS
+	RET
+
+// func panelDot4F16AVX2(p *[4]*uint16, x *float32, n int, acc *[64]float32)
+//
+// The panels hold binary16 bit patterns.
+TEXT ·panelDot4F16AVX2(SB), NOSPLIT, $0-32
+	LOADPANELS
+
+f16loop:
+	PANELSTEP(F16PANEL, 16, 32)
+	INCQ DI
+	CMPQ DI, CX
+	JLT  f16loop
+
+	STOREPANELS
+	RET
 
 // func panelDot4BF16AVX2(p *[4]*uint16, x *float32, n int, acc *[64]float32)
 //
@@ -134,27 +130,10 @@ TEXT ·panelDot4BF16AVX2(SB), NOSPLIT, $0-32
 	LOADPANELS
 
 bf16loop:
-	PREFETCHT0   2048(AX)(DX*1)
-	PREFETCHT0   2048(BX)(DX*1)
-	PREFETCHT0   2048(R8)(DX*1)
-	PREFETCHT0   2048(R9)(DX*1)
-	VBROADCASTSS (SI)(DI*4), Y8
-	BF16PANEL(0(AX)(DX*1), Y9)
-	BF16PANEL(16(AX)(DX*1), Y10)
-	BF16PANEL(0(BX)(DX*1), Y11)
-	BF16PANEL(16(BX)(DX*1), Y12)
-	MACPAIR(Y9, Y10, Y0, Y1)
-	MACPAIR(Y11, Y12, Y2, Y3)
-	BF16PANEL(0(R8)(DX*1), Y9)
-	BF16PANEL(16(R8)(DX*1), Y10)
-	BF16PANEL(0(R9)(DX*1), Y11)
-	BF16PANEL(16(R9)(DX*1), Y12)
-	MACPAIR(Y9, Y10, Y4, Y5)
-	MACPAIR(Y11, Y12, Y6, Y7)
-	ADDQ         $32, DX
-	INCQ         DI
-	CMPQ         DI, CX
-	JLT          bf16loop
+	PANELSTEP(BF16PANEL, 16, 32)
+	INCQ DI
+	CMPQ DI, CX
+	JLT  bf16loop
 
 	STOREPANELS
 	RET
