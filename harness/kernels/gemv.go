@@ -3,7 +3,7 @@ package kernels
 // Chunking of the m == 1 (GEMV) path; fixed, independent of threads.
 const (
 	gemvRowsJob = 64  // output rows per job, Out×In layout
-	gemvColsJob = 256 // output columns per job, In×Out layout
+	gemvColsJob = 384 // output columns per job, In×Out layout: a 768-wide projection splits into two even jobs
 	gemvKC      = 512 // k extent converted at once for half-precision rows
 )
 
