@@ -1,25 +1,32 @@
 package kernels
 
-// Blocking of the packed GEMM path. One job is an mcJob×ncJob tile of the
-// output; inside it the k dimension is walked in ascending blocks of kcBlock,
-// each block continuing the accumulators the previous one stored in y.
-// The sizes are fixed, so the tiling never depends on the thread count.
+// Blocking of the packed GEMM path. x is packed once per call into panels of
+// mr rows for every k block of kcBlock (shared, read-only, by all workers).
+// One job is a block of ncJob output columns over a range of rows: for each
+// ascending k block it packs (or, for f32 weight panels, reads in place) the
+// columns' B block once and sweeps its row panels, each block continuing the
+// accumulators the previous one stored in y. Every output keeps one
+// ascending-k chain whatever the tiling, so neither the job shapes nor the
+// thread count change a bit.
 const (
 	kcBlock = 256 // k extent of a packed block
-	mcJob   = 64  // output rows per job (multiple of mr)
 	ncJob   = 128 // output columns per job (multiple of nr)
+	mcSplit = 64  // rows per job at the finest row split (multiple of mr)
+	// jobsPerWorker is how many jobs per worker the row split aims for
+	// when the column blocks alone are too few to balance the workers.
+	jobsPerWorker = 4
+	// packAlone bounds the m·k below which x is packed by the caller alone.
+	packAlone = 1 << 16
 )
 
 // gemmScratch holds one worker's packing buffers.
 type gemmScratch struct {
-	pa   []float32 // packed A: mcJob/mr panels of kc×mr
 	pb   []float32 // packed B: ncJob/nr panels of kc×nr
 	conv []float32 // one converted row segment of W
 }
 
 func newGemmScratch() *gemmScratch {
 	return &gemmScratch{
-		pa:   make([]float32, mcJob*kcBlock),
 		pb:   make([]float32, ncJob*kcBlock),
 		conv: make([]float32, max(kcBlock, ncJob)),
 	}
@@ -30,80 +37,137 @@ func newGemmScratch() *gemmScratch {
 // Packing buffers come from sc (fresh ones when sc is nil) and go back to it.
 func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, threads int) {
 	n, k := w.Out, w.In
-	rowJobs := (m + mcJob - 1) / mcJob
+	rowPanels := (m + mr - 1) / mr
 	colJobs := (n + ncJob - 1) / ncJob
-	nJobs := rowJobs * colJobs
-	workers := workerCount(threads, nJobs, m*n*k)
+	workers := workerCount(threads, colJobs*rowPanels, m*n*k)
+	// Split the rows when the column blocks alone leave workers idle.
+	split := 1
+	if colJobs < jobsPerWorker*workers {
+		split = min((jobsPerWorker*workers+colJobs-1)/colJobs, (m+mcSplit-1)/mcSplit)
+	}
+	panelsPerSplit := (rowPanels + split - 1) / split
+	split = (rowPanels + panelsPerSplit - 1) / panelsPerSplit
+
+	pa := sc.packedA(rowPanels * mr * k)
+	defer sc.putPackedA(pa)
+	if m*k <= packAlone || workers == 1 {
+		packA(pa, x, m, k, 0, rowPanels)
+	} else {
+		const group = mcSplit / mr
+		runJobs((rowPanels+group-1)/group, workers, func() func(int) {
+			return func(job int) {
+				packA(pa, x, m, k, job*group, min((job+1)*group, rowPanels))
+			}
+		})
+	}
+
 	ws := &workerScratch{s: sc, sets: make([]*gemmScratch, max(workers, 1))}
 	defer sc.put(ws.sets)
-	runJobs(nJobs, workers, func() func(int) {
+	runJobs(colJobs*split, workers, func() func(int) {
 		s := ws.take()
 		return func(job int) {
-			i0 := (job / colJobs) * mcJob
-			j0 := (job % colJobs) * ncJob
-			gemmTile(y, x, w, bias, s, i0, min(i0+mcJob, m), j0, min(j0+ncJob, n))
+			j0 := (job / split) * ncJob
+			p0 := (job % split) * panelsPerSplit
+			gemmJob(y, pa, m, w, bias, s, p0, min(p0+panelsPerSplit, rowPanels), j0, min(j0+ncJob, n))
 		}
 	})
 }
 
-// gemmTile computes output rows [i0, i1) × columns [j0, j1).
-func gemmTile(y, x []float32, w *Mat, bias []float32, s *gemmScratch, i0, i1, j0, j1 int) {
+// gemmJob computes output columns [j0, j1) for the rows of row panels
+// [p0, p1) of the packed x pa (rows past m are skipped).
+func gemmJob(y, pa []float32, m int, w *Mat, bias []float32, s *gemmScratch, p0, p1, j0, j1 int) {
 	n, k := w.Out, w.In
-	rowPanels := (i1 - i0 + mr - 1) / mr
+	mPad := (m + mr - 1) / mr * mr
 	colPanels := (j1 - j0 + nr - 1) / nr
+	// f32 weight panels are the packed B layout already: read them in place.
+	direct := w.Panels != nil && w.DType == F32 && nr == PanelRows && j0%PanelRows == 0
 	for k0 := 0; k0 < k; k0 += kcBlock {
 		kc := min(kcBlock, k-k0)
 		first, last := k0 == 0, k0+kc == k
-		packB(s.pb, s.conv, w, k0, kc, j0, j1)
-		packA(s.pa, x, k, k0, kc, i0, i1)
-		for ip := 0; ip < rowPanels; ip++ {
-			i := i0 + ip*mr
-			rows := min(mr, i1-i)
-			pa := s.pa[ip*mr*kc : (ip+1)*mr*kc]
+		if !direct {
+			packB(s.pb, s.conv, w, k0, kc, j0, j1)
+		}
+		for ip := p0; ip < p1; ip++ {
+			i := ip * mr
+			rows := min(mr, m-i)
+			a := pa[k0*mPad+ip*mr*kc : k0*mPad+(ip+1)*mr*kc]
 			for jp := 0; jp < colPanels; jp++ {
 				j := j0 + jp*nr
 				cols := min(nr, j1-j)
-				var acc [mr * nr]float32
-				if !first {
-					for ii := 0; ii < rows; ii++ {
-						copy(acc[ii*nr:ii*nr+cols], y[(i+ii)*n+j:(i+ii)*n+j+cols])
-					}
+				var b []float32
+				if direct {
+					src := ((j/PanelRows)*k + k0) * PanelRows
+					b = w.Panels.F32[src : src+kc*PanelRows]
+				} else {
+					b = s.pb[jp*nr*kc : (jp+1)*nr*kc]
 				}
-				gemmMicro(kc, pa, s.pb[jp*nr*kc:(jp+1)*nr*kc], &acc)
-				for ii := 0; ii < rows; ii++ {
-					out := y[(i+ii)*n+j : (i+ii)*n+j+cols]
-					tile := acc[ii*nr : ii*nr+cols]
-					if last && bias != nil {
-						for jj := range out {
-							out[jj] = tile[jj] + bias[j+jj]
-						}
-					} else {
-						copy(out, tile)
-					}
+				var bb []float32
+				if last && bias != nil {
+					bb = bias[j:]
 				}
+				if rows == mr && cols == nr {
+					gemmMicroFull(kc, a, b, y[i*n+j:], n, first, bb)
+					continue
+				}
+				gemmMicroEdge(kc, a, b, y[i*n+j:], n, rows, cols, first, bb)
 			}
 		}
 	}
 }
 
-// packA packs rows [i0, i1) × columns [k0, k0+kc) of the row-major x
-// (row stride k) into panels of mr rows: pa[(p*kc+kk)*mr+ii]. Rows past i1
-// are zero.
-func packA(pa, x []float32, k, k0, kc, i0, i1 int) {
-	panels := (i1 - i0 + mr - 1) / mr
-	for p := 0; p < panels; p++ {
-		dst := pa[p*mr*kc : (p+1)*mr*kc]
-		for ii := 0; ii < mr; ii++ {
-			i := i0 + p*mr + ii
-			if i >= i1 {
-				for kk := 0; kk < kc; kk++ {
-					dst[kk*mr+ii] = 0
-				}
-				continue
+// gemmMicroEdge runs gemmMicro on the rows × cols corner of an mr×nr tile
+// of y (row stride ldc): the accumulators start at zero when first is set
+// and from y otherwise; bias (nil, or the tile's column biases) is added
+// after the k loop, and the corner is stored back.
+func gemmMicroEdge(kc int, a, b, y []float32, ldc, rows, cols int, first bool, bias []float32) {
+	var acc [mr * nr]float32
+	if !first {
+		for ii := 0; ii < rows; ii++ {
+			copy(acc[ii*nr:ii*nr+cols], y[ii*ldc:ii*ldc+cols])
+		}
+	}
+	gemmMicro(kc, a, b, &acc)
+	for ii := 0; ii < rows; ii++ {
+		out := y[ii*ldc : ii*ldc+cols]
+		tile := acc[ii*nr : ii*nr+cols]
+		if bias != nil {
+			for jj := range out {
+				out[jj] = tile[jj] + bias[jj]
 			}
-			src := x[i*k+k0 : i*k+k0+kc]
-			for kk, v := range src {
-				dst[kk*mr+ii] = v
+		} else {
+			copy(out, tile)
+		}
+	}
+}
+
+// gemmMicroFullGo is gemmMicroEdge on a whole mr×nr tile: the portable body
+// of gemmMicroFull.
+func gemmMicroFullGo(kc int, a, b, y []float32, ldc int, first bool, bias []float32) {
+	gemmMicroEdge(kc, a, b, y, ldc, mr, nr, first, bias)
+}
+
+// packA packs row panels [p0, p1) of the row-major m×k x into pa, for every
+// k block: panel p of the block at k0 (extent kc) is
+// pa[k0·mPad + p·mr·kc + kk·mr + ii] = x[(p·mr+ii)·k + k0+kk], mPad being m
+// rounded up to mr. Rows past m are zero.
+func packA(pa, x []float32, m, k, p0, p1 int) {
+	mPad := (m + mr - 1) / mr * mr
+	for k0 := 0; k0 < k; k0 += kcBlock {
+		kc := min(kcBlock, k-k0)
+		for p := p0; p < p1; p++ {
+			dst := pa[k0*mPad+p*mr*kc : k0*mPad+(p+1)*mr*kc]
+			for ii := 0; ii < mr; ii++ {
+				i := p*mr + ii
+				if i >= m {
+					for kk := 0; kk < kc; kk++ {
+						dst[kk*mr+ii] = 0
+					}
+					continue
+				}
+				src := x[i*k+k0 : i*k+k0+kc]
+				for kk, v := range src {
+					dst[kk*mr+ii] = v
+				}
 			}
 		}
 	}

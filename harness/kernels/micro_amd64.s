@@ -42,6 +42,35 @@
 	DECQ CX; \
 	JNZ  TOP
 
+// MICROSTEP is one k of the 4×16 tile: two B vectors (Y8, Y9) from DI,
+// the four A values broadcast from SI, eight VMULPS then VADDPS into
+// Y0 … Y7, and both pointers advanced.
+#define MICROSTEP \
+	VMOVUPS      0(DI), Y8 \
+	VMOVUPS      32(DI), Y9 \
+	VBROADCASTSS 0(SI), Y10 \
+	VMULPS       Y8, Y10, Y11 \
+	VMULPS       Y9, Y10, Y12 \
+	VBROADCASTSS 4(SI), Y13 \
+	VADDPS       Y11, Y0, Y0 \
+	VADDPS       Y12, Y1, Y1 \
+	VMULPS       Y8, Y13, Y14 \
+	VMULPS       Y9, Y13, Y15 \
+	VBROADCASTSS 8(SI), Y10 \
+	VADDPS       Y14, Y2, Y2 \
+	VADDPS       Y15, Y3, Y3 \
+	VMULPS       Y8, Y10, Y11 \
+	VMULPS       Y9, Y10, Y12 \
+	VBROADCASTSS 12(SI), Y13 \
+	VADDPS       Y11, Y4, Y4 \
+	VADDPS       Y12, Y5, Y5 \
+	VMULPS       Y8, Y13, Y14 \
+	VMULPS       Y9, Y13, Y15 \
+	VADDPS       Y14, Y6, Y6 \
+	VADDPS       Y15, Y7, Y7 \
+	ADDQ         $16, SI \
+	ADDQ         $64, DI
+
 // func gemmMicroAVX2(kc int, a, b *float32, c *[64]float32)
 //
 // For kk < kc, ascending: c[i*16+j] += a[kk*4+i]·b[kk*16+j], the product
@@ -62,30 +91,7 @@ TEXT ·gemmMicroAVX2(SB), NOSPLIT, $0-32
 	VMOVUPS 224(DX), Y7
 
 loop:
-	VMOVUPS      0(DI), Y8
-	VMOVUPS      32(DI), Y9
-	VBROADCASTSS 0(SI), Y10
-	VMULPS       Y8, Y10, Y11
-	VMULPS       Y9, Y10, Y12
-	VBROADCASTSS 4(SI), Y13
-	VADDPS       Y11, Y0, Y0
-	VADDPS       Y12, Y1, Y1
-	VMULPS       Y8, Y13, Y14
-	VMULPS       Y9, Y13, Y15
-	VBROADCASTSS 8(SI), Y10
-	VADDPS       Y14, Y2, Y2
-	VADDPS       Y15, Y3, Y3
-	VMULPS       Y8, Y10, Y11
-	VMULPS       Y9, Y10, Y12
-	VBROADCASTSS 12(SI), Y13
-	VADDPS       Y11, Y4, Y4
-	VADDPS       Y12, Y5, Y5
-	VMULPS       Y8, Y13, Y14
-	VMULPS       Y9, Y13, Y15
-	VADDPS       Y14, Y6, Y6
-	VADDPS       Y15, Y7, Y7
-	ADDQ         $16, SI
-	ADDQ         $64, DI
+	MICROSTEP
 	DECQ         CX
 	JNZ          loop
 
@@ -97,6 +103,75 @@ loop:
 	VMOVUPS Y5, 160(DX)
 	VMOVUPS Y6, 192(DX)
 	VMOVUPS Y7, 224(DX)
+	VZEROUPPER
+	RET
+
+// func gemmMicroCAVX2(kc int, a, b, c *float32, ldcBytes int, first bool, bias *float32)
+//
+// gemmMicroAVX2 on a whole 4×16 tile held in place: rows c, c+ldc, c+2·ldc,
+// c+3·ldc (ldcBytes apart). The accumulators start at zero when first is
+// set and from the tile otherwise; after the k loop the 16 bias values are
+// added to each row when bias is not nil, and the tile is stored back.
+TEXT ·gemmMicroCAVX2(SB), NOSPLIT, $0-56
+	MOVQ    kc+0(FP), CX
+	MOVQ    a+8(FP), SI
+	MOVQ    b+16(FP), DI
+	MOVQ    c+24(FP), DX
+	MOVQ    ldcBytes+32(FP), R8
+	LEAQ    (DX)(R8*1), R9
+	LEAQ    (R9)(R8*1), R10
+	LEAQ    (R10)(R8*1), R11
+	MOVBLZX first+40(FP), AX
+	TESTQ   AX, AX
+	JZ      cload
+	VXORPS  Y0, Y0, Y0
+	VXORPS  Y1, Y1, Y1
+	VXORPS  Y2, Y2, Y2
+	VXORPS  Y3, Y3, Y3
+	VXORPS  Y4, Y4, Y4
+	VXORPS  Y5, Y5, Y5
+	VXORPS  Y6, Y6, Y6
+	VXORPS  Y7, Y7, Y7
+	JMP     cloop
+
+cload:
+	VMOVUPS 0(DX), Y0
+	VMOVUPS 32(DX), Y1
+	VMOVUPS 0(R9), Y2
+	VMOVUPS 32(R9), Y3
+	VMOVUPS 0(R10), Y4
+	VMOVUPS 32(R10), Y5
+	VMOVUPS 0(R11), Y6
+	VMOVUPS 32(R11), Y7
+
+cloop:
+	MICROSTEP
+	DECQ    CX
+	JNZ     cloop
+
+	MOVQ    bias+48(FP), AX
+	TESTQ   AX, AX
+	JZ      cstore
+	VMOVUPS 0(AX), Y8
+	VMOVUPS 32(AX), Y9
+	VADDPS  Y8, Y0, Y0
+	VADDPS  Y9, Y1, Y1
+	VADDPS  Y8, Y2, Y2
+	VADDPS  Y9, Y3, Y3
+	VADDPS  Y8, Y4, Y4
+	VADDPS  Y9, Y5, Y5
+	VADDPS  Y8, Y6, Y6
+	VADDPS  Y9, Y7, Y7
+
+cstore:
+	VMOVUPS Y0, 0(DX)
+	VMOVUPS Y1, 32(DX)
+	VMOVUPS Y2, 0(R9)
+	VMOVUPS Y3, 32(R9)
+	VMOVUPS Y4, 0(R10)
+	VMOVUPS Y5, 32(R10)
+	VMOVUPS Y6, 0(R11)
+	VMOVUPS Y7, 32(R11)
 	VZEROUPPER
 	RET
 

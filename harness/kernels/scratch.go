@@ -13,6 +13,7 @@ import (
 // overwritten before it is read.
 type Scratch struct {
 	gemm sync.Pool // of *gemmScratch
+	a    sync.Pool // of *[]float32: packed x, shared by a call's workers
 }
 
 // Linear is the package-level Linear, taking its packing buffers from s.
@@ -29,6 +30,24 @@ func (s *Scratch) get() *gemmScratch {
 		}
 	}
 	return newGemmScratch()
+}
+
+// packedA returns a buffer of n floats for a call's packed x, from s when
+// it holds one large enough (its contents are overwritten before use).
+func (s *Scratch) packedA(n int) []float32 {
+	if s != nil {
+		if b, ok := s.a.Get().(*[]float32); ok && cap(*b) >= n {
+			return (*b)[:n]
+		}
+	}
+	return make([]float32, n)
+}
+
+// putPackedA hands a packed-x buffer back to s (a no-op when s is nil).
+func (s *Scratch) putPackedA(b []float32) {
+	if s != nil {
+		s.a.Put(&b)
+	}
 }
 
 // put hands buffer sets back to s (a no-op when s is nil).

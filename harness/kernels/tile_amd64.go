@@ -37,6 +37,30 @@ func gemmMicro(kc int, a, b []float32, c *[mr * nr]float32) {
 	gemmMicroGo(kc, a, b, c)
 }
 
+// gemmMicroFull is gemmMicroFullGo on a whole mr×nr tile (y holds its mr
+// rows, ldc apart); with AVX2 the tile stays in place: the assembly loads
+// (or zeroes) it, runs the k loop, adds the bias and stores it, the same
+// bits without the copies through an accumulator array.
+func gemmMicroFull(kc int, a, b, y []float32, ldc int, first bool, bias []float32) {
+	if !hasAVX2 || kc <= 0 {
+		gemmMicroFullGo(kc, a, b, y, ldc, first, bias)
+		return
+	}
+	a = a[:kc*mr]
+	b = b[:kc*nr]
+	y = y[:(mr-1)*ldc+nr]
+	var bp *float32
+	if bias != nil {
+		bp = &bias[:nr][0]
+	}
+	gemmMicroCAVX2(kc, &a[0], &b[0], &y[0], 4*ldc, first, bp)
+}
+
+// gemmMicroCAVX2 is gemmMicroFull in AVX2 assembly (micro_amd64.s).
+//
+//go:noescape
+func gemmMicroCAVX2(kc int, a, b, c *float32, ldcBytes int, first bool, bias *float32)
+
 // gemmMicroAVX2 is gemmMicro in AVX2 assembly (micro_amd64.s).
 //
 //go:noescape

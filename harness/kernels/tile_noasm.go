@@ -42,6 +42,11 @@ func gemmMicro(kc int, a, b []float32, c *[mr * nr]float32) {
 	c[4], c[5], c[6], c[7] = c10, c11, c12, c13
 }
 
+// gemmMicroFull is gemmMicroFullGo.
+func gemmMicroFull(kc int, a, b, y []float32, ldc int, first bool, bias []float32) {
+	gemmMicroFullGo(kc, a, b, y, ldc, first, bias)
+}
+
 // MicroKernel names the GEMM micro-kernel in use (benchmarks print it).
 func MicroKernel() string { return "go 2x4" }
 
