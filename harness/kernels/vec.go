@@ -88,7 +88,18 @@ func Argmax(x []float32) int {
 }
 
 // ReLU does x[i] = max(x[i], 0) in place; NaN stays NaN and -0 becomes +0.
+// With AVX2 blocks of eight run in assembly (compare ≤ 0, then clear those
+// lanes), the same bits as reluGo.
 func ReLU(x []float32) {
+	blocks := len(x) &^ 7
+	if blocks > 0 {
+		reluBlocks(x[:blocks])
+	}
+	reluGo(x[blocks:])
+}
+
+// reluGo is ReLU's portable body.
+func reluGo(x []float32) {
 	for i, v := range x {
 		if v <= 0 {
 			x[i] = 0

@@ -97,6 +97,32 @@ func TestReLU(t *testing.T) {
 	if x[5] != 0 {
 		t.Fatalf("ReLU(-Inf) = %v, want 0", x[5])
 	}
+	// The same values at every place of a vector with blocks of eight and a
+	// tail, so both the assembly blocks and the Go tail see each of them.
+	special := []float32{-1, 0, 2.5, float32(math.Copysign(0, -1)), float32(math.NaN()), float32(math.Inf(-1)), float32(math.Inf(1)), 1e-45, -1e-45}
+	for at := range 19 {
+		for _, v := range special {
+			y := make([]float32, 19)
+			for i := range y {
+				y[i] = float32(i%5) - 2
+			}
+			y[at] = v
+			kernels.ReLU(y)
+			for i, got := range y {
+				in := float32(i%5) - 2
+				if i == at {
+					in = v
+				}
+				want := in
+				if in <= 0 {
+					want = 0
+				}
+				if math.Float32bits(got) != math.Float32bits(want) && !(in != in && got != got) {
+					t.Fatalf("ReLU(%v) at %d of 19 = %v, want %v", in, i, got, want)
+				}
+			}
+		}
+	}
 }
 
 // DotStrided is Dot over equally spaced rows, bit for bit, for row counts
