@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 	"sync"
+	"sync/atomic"
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/kernels"
@@ -315,15 +316,7 @@ func (m *Model) attention(st *state, li int) {
 		m.attentionHookedBatch(st, li)
 		return
 	}
-	parallelRows(R, m.threads, func(r0, r1 int) {
-		var scores []float32
-		for r := r0; r < r1; r++ {
-			for h := 0; h < c.Heads; h++ {
-				scores = m.attendHead(st.a[r*qd+h*hd:r*qd+(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd],
-					st.sessions[st.rows[r].seq], li, h, st.rows[r].pos+1, scores)
-			}
-		}
-	})
+	m.attendRows(st, li)
 	out := st.h // the normed input is no longer needed
 	m.scratch.Linear(out, st.a, R, L.o, L.oB, m.threads)
 	kernels.Add(st.x, st.x, out)
@@ -517,19 +510,135 @@ func (m *Model) attendHead(out, q []float32, s *Session, li, head, n int, scores
 		scores = make([]float32, n)
 	}
 	scores = scores[:n]
-	K, V, P := s.k[li], s.v[li], s.present[li]
-	kernels.DotStrided(scores, q, K, kvd, g*hd)
-	for j := 0; j < n; j++ {
-		if P != nil && !P[j*c.KVHeads+g] {
-			scores[j] = float32(math.Inf(-1))
-			continue
+	kernels.DotStrided(scores, q, s.k[li], kvd, g*hd)
+	m.attendScores(out, scores, s, li, g, scale)
+	return scores
+}
+
+// attendScores finishes one query head's attention from its raw scores
+// (q·k for each of the first len(scores) cached positions of key/value head
+// g): positions where g was not computed get −Inf, the rest are scaled, the
+// softmax is taken in place, and out receives the weighted sum of values.
+func (m *Model) attendScores(out, scores []float32, s *Session, li, g int, scale float32) {
+	c := m.Config
+	kvd := c.KVHeads * c.HeadDim
+	if P := s.present[li]; P == nil {
+		kernels.Scale(scale, scores)
+	} else {
+		for j := range scores {
+			if !P[j*c.KVHeads+g] {
+				scores[j] = float32(math.Inf(-1))
+				continue
+			}
+			scores[j] *= scale
 		}
-		scores[j] *= scale
 	}
 	kernels.Softmax(scores)
 	clear(out)
-	kernels.AxpyRows(out, scores, V, kvd, g*hd) // rows with weight 0 skipped
-	return scores
+	kernels.AxpyRows(out, scores, s.v[li], kvd, g*c.HeadDim) // rows with weight 0 skipped
+}
+
+// Blocked attention: a run of at least attendMinRun consecutive rows of one
+// sequence at consecutive positions (a prefill) computes each head's raw
+// scores attendBlock queries at a time, as one product of the block's
+// queries with the head's cached keys. Each score is the same dot product
+// (one ascending chain) as attendHead's, so the bits are the same; a block
+// computes the scores of keys past a query's own position too, and ignores
+// them.
+const (
+	attendBlock  = 64
+	attendMinRun = 8
+)
+
+// attnScratch is one worker's buffers for blocked attention.
+type attnScratch struct {
+	q, k, s []float32
+}
+
+// grow returns b with length n, reallocated when its capacity is short.
+func grow(b []float32, n int) []float32 {
+	if cap(b) < n {
+		return make([]float32, n)
+	}
+	return b[:n]
+}
+
+// attendRows computes every row's attention output (all heads) into st.a,
+// in parallel over jobs: one job per row outside runs, one per block and
+// head inside them.
+func (m *Model) attendRows(st *state, li int) {
+	c := m.Config
+	R, hd := len(st.rows), c.HeadDim
+	qd := c.Heads * hd
+	type job struct{ r0, r1, h int } // h < 0: row r0 alone, every head
+	var jobs []job
+	for r := 0; r < R; {
+		e := r + 1
+		for e < R && st.rows[e].seq == st.rows[r].seq && st.rows[e].pos == st.rows[e-1].pos+1 {
+			e++
+		}
+		if e-r < attendMinRun {
+			for i := r; i < e; i++ {
+				jobs = append(jobs, job{i, i + 1, -1})
+			}
+		} else {
+			for b := r; b < e; b += attendBlock {
+				for h := 0; h < c.Heads; h++ {
+					jobs = append(jobs, job{b, min(b+attendBlock, e), h})
+				}
+			}
+		}
+		r = e
+	}
+	scale := float32(1 / math.Sqrt(float64(hd)))
+	parallelJobs(len(jobs), m.threads, func(next func() (int, bool)) {
+		as, _ := m.attn.Get().(*attnScratch)
+		if as == nil {
+			as = new(attnScratch)
+		}
+		defer m.attn.Put(as)
+		var scores []float32
+		for j, ok := next(); ok; j, ok = next() {
+			jb := jobs[j]
+			s := st.sessions[st.rows[jb.r0].seq]
+			if jb.h < 0 {
+				r := jb.r0
+				for h := 0; h < c.Heads; h++ {
+					scores = m.attendHead(st.a[r*qd+h*hd:r*qd+(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd],
+						s, li, h, st.rows[r].pos+1, scores)
+				}
+				continue
+			}
+			m.attendBlockHead(st, li, jb.r0, jb.r1, jb.h, s, as, scale)
+		}
+	})
+}
+
+// attendBlockHead computes head h's attention for rows [r0, r1), one run
+// of session s at consecutive positions: the block's queries times the first
+// n cached keys (n the last row's position + 1) as one product, then each
+// row's own prefix of scores through attendScores.
+func (m *Model) attendBlockHead(st *state, li, r0, r1, h int, s *Session, as *attnScratch, scale float32) {
+	c := m.Config
+	hd, qd, kvd := c.HeadDim, c.Heads*c.HeadDim, c.KVHeads*c.HeadDim
+	g := h / (c.Heads / c.KVHeads)
+	rows, n := r1-r0, st.rows[r1-1].pos+1
+	as.q, as.k, as.s = grow(as.q, rows*hd), grow(as.k, n*hd), grow(as.s, rows*n)
+	K := s.k[li]
+	for j := 0; j < n; j++ {
+		copy(as.k[j*hd:(j+1)*hd], K[j*kvd+g*hd:j*kvd+(g+1)*hd])
+	}
+	for i := 0; i < rows; i++ {
+		r := r0 + i
+		copy(as.q[i*hd:(i+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd])
+	}
+	keys := &kernels.Mat{DType: kernels.F32, Out: n, In: hd, F32: as.k}
+	m.scratch.Linear(as.s, as.q, rows, keys, nil, 1)
+	for i := 0; i < rows; i++ {
+		r := r0 + i
+		np := st.rows[r].pos + 1
+		m.attendScores(st.a[r*qd+h*hd:r*qd+(h+1)*hd], as.s[i*n:i*n+np], s, li, g, scale)
+	}
 }
 
 // headColumns expands head indices to the indices of their hd-wide slices.
@@ -766,6 +875,25 @@ func parallelRows(n, threads int, fn func(r0, r1 int)) {
 			fn(r0, r1)
 		}()
 	}
+	wg.Wait()
+}
+
+// parallelJobs runs n jobs on up to threads goroutines (the caller is one
+// of them): each worker calls fn once with next, which hands out the next
+// job index until none are left. Which worker runs a job never changes its
+// result.
+func parallelJobs(n, threads int, fn func(next func() (int, bool))) {
+	var counter atomic.Int64
+	next := func() (int, bool) {
+		j := int(counter.Add(1) - 1)
+		return j, j < n
+	}
+	threads = min(threads, n)
+	var wg sync.WaitGroup
+	for range threads - 1 {
+		wg.Go(func() { fn(next) })
+	}
+	fn(next)
 	wg.Wait()
 }
 

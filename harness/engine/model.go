@@ -40,6 +40,7 @@ type Model struct {
 	rope   []float32    // inverse frequencies (Llama)
 
 	scratch *kernels.Scratch                    // the products' packing buffers, reused across calls
+	attn    *sync.Pool                          // of *attnScratch: blocked attention's buffers
 	sources map[*kernels.Mat]*checkpoint.Tensor // the tensor each matrix was bound from, until Load returns
 }
 
@@ -91,7 +92,7 @@ func Load(dir string, opts Options) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads, scratch: new(kernels.Scratch)}
+	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads, scratch: new(kernels.Scratch), attn: new(sync.Pool)}
 	if m.threads <= 0 {
 		m.threads = runtime.NumCPU()
 	}

@@ -50,8 +50,18 @@ func Axpy(alpha float32, x, y []float32) {
 	axpyAcc(alpha, x, y)
 }
 
-// Scale does x[i] *= alpha in place.
+// Scale does x[i] *= alpha in place (eight lanes at a time in AVX2 where
+// the CPU has it: the same rounded products).
 func Scale(alpha float32, x []float32) {
+	blocks := len(x) &^ 7
+	if blocks > 0 {
+		scaleBlocks(alpha, x[:blocks])
+	}
+	scaleGo(alpha, x[blocks:])
+}
+
+// scaleGo is Scale's portable body.
+func scaleGo(alpha float32, x []float32) {
 	for i := range x {
 		x[i] *= alpha
 	}

@@ -223,3 +223,27 @@ func TestAxpyRowsIsAxpyLoop(t *testing.T) {
 		kernels.AxpyRows(make([]float32, 4), make([]float32, 2), make([]float32, 7), 4, 0)
 	})
 }
+
+// Scale is one rounded float32 product per element, bit for bit, on every
+// length around the eight-lane blocks and with special values among them.
+func TestScale(t *testing.T) {
+	special := []float32{0, float32(math.Copysign(0, -1)), float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1)), 1e-45, math.MaxFloat32, -3.5}
+	for _, n := range []int{0, 1, 7, 8, 9, 16, 19, 300} {
+		for _, alpha := range []float32{0.125, -3, 1e-30, float32(math.Inf(1))} {
+			x := make([]float32, n)
+			for i := range x {
+				x[i] = special[i%len(special)] * float32(i+1)
+			}
+			want := make([]float32, n)
+			for i, v := range x {
+				want[i] = alpha * v
+			}
+			kernels.Scale(alpha, x)
+			for i := range x {
+				if math.Float32bits(x[i]) != math.Float32bits(want[i]) && !(x[i] != x[i] && want[i] != want[i]) {
+					t.Fatalf("Scale(%v) n=%d [%d] = %v, want %v", alpha, n, i, x[i], want[i])
+				}
+			}
+		}
+	}
+}
