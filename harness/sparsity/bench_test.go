@@ -123,14 +123,21 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 			kernels.Linear(y, hid, 1, down, nil, 1)
 		}
 	})
-	p := bld.Predictor(Unit{0, MLP})
+	// The sparse block runs as the build's hook runs it: the predictor on
+	// the panel copies Build packed, top-k into reused scratch.
+	u := Unit{0, MLP}
+	p := bld.Predictor(u)
+	w1, w2 := p.mats()
+	w1.Panels, w2.Panels = bld.panels[u][0], bld.panels[u][1]
+	sc := &scorer{p: p, w1: *w1, w2: *w2, rows1: iota32(p.Rank), all: iota32(p.Out)}
 	scores, ph := make([]float32, cfg.FFN), make([]float32, p.Rank)
-	k := bld.Rule(Unit{0, MLP}).K
-	var idx []int32
+	order := make([]uint64, 2*cfg.FFN)
+	k := bld.Rule(u).K
+	idx := make([]int32, 0, cfg.FFN)
 	b.Run("keep10", func(b *testing.B) {
 		for range b.N {
-			p.Scores(scores, ph, x)
-			idx = TopK(idx, scores, k)
+			sc.scores(scores, ph, x)
+			idx = topKInto(idx, order, scores, k)
 			kernels.LinearGather(hid[:k], x, up, nil, idx)
 			kernels.ReLU(hid[:k])
 			kernels.LinearScatterIn(y, hid[:k], downT, nil, idx)
