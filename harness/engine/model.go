@@ -165,6 +165,20 @@ func (m *Model) Weights() *checkpoint.Weights { return m.weights }
 // Threads returns the number of kernel workers the model uses.
 func (m *Model) Threads() int { return m.threads }
 
+// WithThreads returns a view of m whose kernels use n workers (n >= 1). It
+// shares m's weights and buffers' pools (closing it does nothing; close m
+// when done), may run concurrently with m and other views, and gives the
+// same bits as m: no result depends on the thread count.
+func (m *Model) WithThreads(n int) *Model {
+	if n < 1 {
+		panic("engine: WithThreads needs n >= 1")
+	}
+	v := *m
+	v.threads = n
+	v.borrowed = true
+	return &v
+}
+
 // binder resolves layout names to tensors, accepting the name prefixes that
 // open checkpoints of each family use, and records which tensors it used.
 type binder struct {

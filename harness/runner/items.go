@@ -73,27 +73,38 @@ func (rc *runCtx) itemRecords(pp *prepared, t *Target, role string) ([]results.I
 			return cached.Items, nil
 		}
 	}
-	hook := t.hook(nil, false)
-	prog := rc.progress(pp.probe.Name + " (" + role + ")")
-	var out []results.Item
-	for i := range pp.items {
+	recs := make([]results.Item, len(pp.items))
+	ran := make([]bool, len(pp.items))
+	pc := &progressCounter{total: len(pp.items), prog: rc.progress(pp.probe.Name + " (" + role + ")")}
+	err := forEach(lanes(t, len(pp.items)), len(pp.items), func(l lane, i int) error {
 		it := &pp.items[i]
 		if !inShard(rc.opts.Shard, pp.probe.Name, it.ID) {
-			continue
+			pc.step()
+			return nil
 		}
 		var rec results.Item
 		var err error
 		if pp.probe.Kind == suites.Choice {
-			rec, err = choose(t.Model, hook, pp, it)
+			rec, err = choose(l.model, l.hook, pp, it)
 		} else {
-			rec, err = generate(t.Model, hook, pp, it)
+			rec, err = generate(l.model, l.hook, pp, it)
 		}
 		if err != nil {
-			return nil, fmt.Errorf("item %q (%s line %d): %w", it.ID, pp.probe.Items, it.Line, err)
+			return fmt.Errorf("item %q (%s line %d): %w", it.ID, pp.probe.Items, it.Line, err)
 		}
 		rec.ID, rec.Index = it.ID, i
-		out = append(out, rec)
-		prog(i+1, len(pp.items))
+		recs[i], ran[i] = rec, true
+		pc.step()
+		return nil
+	})
+	if err != nil {
+		return nil, err
+	}
+	var out []results.Item
+	for i, ok := range ran {
+		if ok {
+			out = append(out, recs[i])
+		}
 	}
 	if role == RoleBase {
 		rc.storeFor(pp, t, &results.Probe{Name: pp.probe.Name, Kind: pp.probe.Kind, Hash: pp.probe.Hash, Items: out})

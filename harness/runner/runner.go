@@ -63,10 +63,16 @@ type Target struct {
 
 // hook returns a fresh hook for one goroutine, or nil for a checkpoint.
 func (t *Target) hook(stats *sparsity.Stats, recall bool) engine.Hook {
+	return t.hookThreads(stats, recall, 0)
+}
+
+// hookThreads is hook with its batched scoring bounded to threads workers
+// (0: the model's count).
+func (t *Target) hookThreads(stats *sparsity.Stats, recall bool, threads int) engine.Hook {
 	if t == nil || t.Build == nil {
 		return nil
 	}
-	return t.Build.Hook(sparsity.HookOptions{Dense: t.Dense, Stats: stats, Recall: recall})
+	return t.Build.Hook(sparsity.HookOptions{Dense: t.Dense, Stats: stats, Recall: recall, Threads: threads})
 }
 
 // Options configure a run.

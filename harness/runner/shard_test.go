@@ -126,7 +126,7 @@ func TestDeterministicAcrossThreadsAndRuns(t *testing.T) {
 	s := writeSuite(t, mixedSuite, defaultFiles())
 	dir := writeModel(t, 4, nil)
 	var outs [][]byte
-	for _, threads := range []int{1, 2, 1} {
+	for _, threads := range []int{1, 2, 3, 1} {
 		base := openTarget(t, dir, threads)
 		cand := sparseTarget(t, base, 8)
 		r := run(t, s, base, cand, Options{})

@@ -30,14 +30,18 @@ func (rc *runCtx) perplexity(pp *prepared, pr *results.Probe) error {
 		return nil
 	}
 	t := rc.subject
-	m, hook := t.Model, t.hook(nil, false)
-	prog := rc.progress(pp.probe.Name)
-	for wi, w := range pp.windows {
+	m := t.Model
+	items := make([]results.Item, len(pp.windows))
+	ran := make([]bool, len(pp.windows))
+	pc := &progressCounter{total: len(pp.windows), prog: rc.progress(pp.probe.Name)}
+	err := forEach(lanes(t, len(pp.windows)), len(pp.windows), func(l lane, wi int) error {
+		w := pp.windows[wi]
 		id := windowID(wi)
 		if !inShard(rc.opts.Shard, pp.probe.Name, id) {
-			continue
+			pc.step()
+			return nil
 		}
-		lp, err := rc.windowLogProbs(t, pp, wi, hook)
+		lp, err := rc.windowLogProbs(t, l.model, pp, wi, l.hook)
 		if err != nil {
 			return fmt.Errorf("window %s (tokens %d–%d): %w", id, w.start, w.end, err)
 		}
@@ -47,8 +51,17 @@ func (rc *runCtx) perplexity(pp *prepared, pr *results.Probe) error {
 			nbytes += targetBytes(m, pp.tokens[tgt])
 		}
 		n := w.end - w.first
-		pr.Items = append(pr.Items, results.Item{ID: id, Index: wi, NLL: &nll, Tokens: &n, Bytes: &nbytes})
-		prog(wi+1, len(pp.windows))
+		items[wi], ran[wi] = results.Item{ID: id, Index: wi, NLL: &nll, Tokens: &n, Bytes: &nbytes}, true
+		pc.step()
+		return nil
+	})
+	if err != nil {
+		return err
+	}
+	for wi, ok := range ran {
+		if ok {
+			pr.Items = append(pr.Items, items[wi])
+		}
 	}
 	rc.store(pp, pr)
 	return nil
@@ -80,18 +93,19 @@ func (rc *runCtx) prefixOf(t *Target, pp *prepared, wi int) (*engine.Prefix, err
 	})
 }
 
-// windowLogProbs scores window wi on target t, from a dense prefix when the
-// target allows one (the same bits either way).
-func (rc *runCtx) windowLogProbs(t *Target, pp *prepared, wi int, hook engine.Hook) ([]float64, error) {
+// windowLogProbs scores window wi on target t, run on m (t's model or a
+// view of it), from a dense prefix when the target allows one (the same
+// bits either way).
+func (rc *runCtx) windowLogProbs(t *Target, m *engine.Model, pp *prepared, wi int, hook engine.Hook) ([]float64, error) {
 	w := pp.windows[wi]
 	p, err := rc.prefixOf(t, pp, wi)
 	if err != nil || p == nil {
 		if err != nil {
 			return nil, err
 		}
-		return t.Model.LogProbs(pp.tokens[w.start:w.end], hook)
+		return m.LogProbs(pp.tokens[w.start:w.end], hook)
 	}
-	return t.Model.LogProbsFrom(pp.tokens[w.start:w.end], p, hook)
+	return m.LogProbsFrom(pp.tokens[w.start:w.end], p, hook)
 }
 
 // windowLogits is rowLogits of window wi, from a dense prefix when allowed.

@@ -1,6 +1,7 @@
 package sparsity
 
 import (
+	"cmp"
 	"math"
 	"sync"
 
@@ -19,6 +20,9 @@ type HookOptions struct {
 	// Recall also measures, per token, the recall of the kept set against
 	// the oracle set of the same size; it costs a Token.Dense call per unit.
 	Recall bool
+	// Threads, when > 0, bounds the kernel workers of batched predictor
+	// scoring (0: the base model's thread count). Results do not depend on it.
+	Threads int
 }
 
 // Hook returns an engine.Hook that applies the build's rules token by token.
@@ -28,7 +32,7 @@ type HookOptions struct {
 func (b *Build) Hook(opts HookOptions) engine.Hook {
 	cfg := b.Base.Config
 	h := &hook{
-		threads: b.Base.Threads(),
+		threads: cmp.Or(opts.Threads, b.Base.Threads()),
 		sel:     make([][2]selector, cfg.Layers),
 		stats:   opts.Stats,
 		recall:  opts.Recall,
