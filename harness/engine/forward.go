@@ -52,6 +52,20 @@ func (s *Session) appendKV(li int, k, v []float32, present []bool) {
 	s.v[li] = appendDoubling(s.v[li], v)
 }
 
+// reserveKV makes room in layer li's cache for rows more positions, so a
+// batch appends without regrowing (one allocation of the needed size, or
+// double the old capacity when that is larger).
+func (s *Session) reserveKV(li, rows int) {
+	kvd := s.m.Config.KVHeads * s.m.Config.HeadDim
+	for _, c := range []*[]float32{&s.k[li], &s.v[li]} {
+		if need := len(*c) + rows*kvd; need > cap(*c) {
+			grown := make([]float32, len(*c), max(2*cap(*c), need))
+			copy(grown, *c)
+			*c = grown
+		}
+	}
+}
+
 // appendDoubling appends row to c, doubling the capacity when it runs out
 // (append alone grows large slices by about a quarter, which re-copies a
 // long cache every few positions).
@@ -303,6 +317,16 @@ func (m *Model) attention(st *state, li int) {
 		m.scratch.Linear(st.v, st.h, R, L.v, L.vB, m.threads)
 	}
 	// Keys get their positions and join the caches before any query reads them.
+	if st.hook == nil && R > 1 {
+		for r := 0; r < R; {
+			e := r + 1
+			for e < R && st.rows[e].seq == st.rows[r].seq {
+				e++
+			}
+			st.sessions[st.rows[r].seq].reserveKV(li, e-r)
+			r = e
+		}
+	}
 	for r := 0; r < R; r++ {
 		if m.rope != nil {
 			kernels.Rope(st.k[r*kvd:(r+1)*kvd], hd, st.rows[r].pos, m.rope)

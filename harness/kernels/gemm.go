@@ -156,6 +156,20 @@ func packA(pa, x []float32, m, k, p0, p1 int) {
 		kc := min(kcBlock, k-k0)
 		for p := p0; p < p1; p++ {
 			dst := pa[k0*mPad+p*mr*kc : k0*mPad+(p+1)*mr*kc]
+			if mr == 4 && (p+1)*mr <= m {
+				// A whole panel of four rows: one contiguous group of
+				// four stores per k instead of four strided passes.
+				i := p * mr
+				r0 := x[i*k+k0 : i*k+k0+kc]
+				r1 := x[(i+1)*k+k0 : (i+1)*k+k0+kc]
+				r2 := x[(i+2)*k+k0 : (i+2)*k+k0+kc]
+				r3 := x[(i+3)*k+k0 : (i+3)*k+k0+kc]
+				for kk := range r0 {
+					d := dst[kk*4 : kk*4+4 : kk*4+4]
+					d[0], d[1], d[2], d[3] = r0[kk], r1[kk], r2[kk], r3[kk]
+				}
+				continue
+			}
 			for ii := 0; ii < mr; ii++ {
 				i := p*mr + ii
 				if i >= m {
