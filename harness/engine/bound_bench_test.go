@@ -18,9 +18,10 @@ import (
 // decodeBytesPerToken counts the weight bytes one batch-1 decode step reads:
 // every weight matrix once (q, k, v and out projections, the two MLP
 // matrices, and the output head, which is the embedding when tied) at the
-// dtype the engine keeps it in, which is the stored dtype: the engine maps
-// f16 weights and converts them a few values at a time inside the kernels,
-// never as a whole (kernels.Mat). Add one row each of the token and position
+// dtype the engine keeps it in, which is the stored dtype for a model of
+// this size: the engine maps f16 weights and converts them a few values at
+// a time inside the kernels (only models under widenMaxWeights are widened
+// at load, see Options.NoWiden). Add one row each of the token and position
 // embeddings and every norm weight and bias (float32). The key/value cache
 // is left out (under 2% here), so the bound is a little generous to the
 // bandwidth side.
@@ -146,7 +147,9 @@ func TestDecodeBytesPerToken(t *testing.T) {
 			cfg := synth.Tiny(checkpoint.OPT)
 			dir := filepath.Join(t.TempDir(), "opt")
 			require.NoError(t, synth.Write(dir, cfg, synth.Options{Seed: 7, DType: dt}))
-			m, err := Load(dir, Options{Threads: 2})
+			// NoWiden: a model this small would otherwise be widened to f32
+			// at load (the OPT-125M shape the benchmark runs is not).
+			m, err := Load(dir, Options{Threads: 2, NoWiden: true})
 			require.NoError(t, err)
 			defer m.Close()
 			d, f, v := int64(cfg.Hidden), int64(cfg.FFN), int64(cfg.VocabSize)

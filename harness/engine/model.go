@@ -77,7 +77,20 @@ type Options struct {
 	// contiguous runs; they cost one more copy of those weights in their
 	// stored dtype (about the checkpoint's size again) and change no result.
 	NoPanels bool
+	// NoWiden keeps a small model's half-precision projections at their
+	// stored width. By default, when every projection and the head are f16
+	// or bf16 and they hold at most widenMaxWeights values, Load widens them
+	// to f32 (exactly: every half value is a float32) before packing their
+	// panels, so the products read them in place with no per-call
+	// conversion, at 8 bytes per weight instead of 4; larger models, whose
+	// steps are bound by memory bandwidth, keep the stored width. Results
+	// are the same bits either way.
+	NoWiden bool
 }
+
+// widenMaxWeights bounds the projection and head weights a model may have
+// for Load to widen them to f32 (64 MiB of f32 values and panels).
+const widenMaxWeights = 8 << 20
 
 // Load opens a checkpoint directory: config.json, the safetensors weights
 // (single file or sharded) and, when present, the tokenizer. Every tensor the
@@ -111,7 +124,7 @@ func Load(dir string, opts Options) (*Model, error) {
 		}
 	}
 	if !opts.NoPanels {
-		m.packPanels()
+		m.packPanels(!opts.NoWiden)
 	}
 	m.sources = nil
 	if !opts.NoTokenizer && hasTokenizer(dir) {
@@ -424,7 +437,10 @@ func ignorable(f checkpoint.Family, name string) bool {
 // of the weights rather than two; whatever still reads the stored layout (an
 // embedding row, a sparse MLP's gathered rows) brings its pages back from
 // the file.
-func (m *Model) packPanels() {
+//
+// With widen, a small half-precision model's matrices are first widened to
+// f32 in place (see Options.NoWiden).
+func (m *Model) packPanels(widen bool) {
 	var mats []*kernels.Mat
 	for i := range m.layers {
 		L := &m.layers[i]
@@ -438,6 +454,12 @@ func (m *Model) packPanels() {
 	m.sources[&head] = m.sources[m.head]
 	m.head = &head
 	mats = append(mats, m.head)
+	var weights int
+	for _, w := range mats {
+		widen = widen && w.DType != kernels.F32
+		weights += w.Out * w.In
+	}
+	widen = widen && weights <= widenMaxWeights
 	// Matrices differ in size (the head is a third of OPT-125M), so workers
 	// take the next matrix as they finish rather than fixed shares.
 	panels := make([]*kernels.Panels, len(mats))
@@ -450,6 +472,9 @@ func (m *Model) packPanels() {
 				if i >= len(mats) {
 					return
 				}
+				if widen {
+					widenMat(mats[i])
+				}
 				panels[i] = kernels.PackPanels(mats[i])
 				if t := m.sources[mats[i]]; t != nil {
 					t.Release()
@@ -461,6 +486,17 @@ func (m *Model) packPanels() {
 	for i, w := range mats {
 		w.Panels = panels[i]
 	}
+}
+
+// widenMat replaces w's half-precision storage by the same values in f32.
+func widenMat(w *kernels.Mat) {
+	f := make([]float32, len(w.Half))
+	if w.DType == kernels.F16 {
+		kernels.F16ToF32(f, w.Half)
+	} else {
+		kernels.BF16ToF32(f, w.Half)
+	}
+	w.DType, w.F32, w.Half = kernels.F32, f, nil
 }
 
 // neuronMajor copies an output-major matrix into In×Out storage (the

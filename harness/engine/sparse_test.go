@@ -1,12 +1,15 @@
 package engine
 
 import (
+	"path/filepath"
 	"strings"
 	"testing"
 
 	"github.com/stretchr/testify/require"
 
 	"sparsegate/harness/checkpoint"
+	"sparsegate/harness/kernels"
+	"sparsegate/harness/synth"
 )
 
 // posHook keeps a position-dependent subset: heads h with (h+pos)%3 != 0 (at
@@ -147,5 +150,36 @@ func TestPanelsGiveTheSameBits(t *testing.T) {
 				m.Close()
 			}
 		})
+	}
+}
+
+// A small half-precision model is widened to f32 at load (exactly), and runs
+// to the same bits as with its stored width, dense, hooked and batched.
+func TestWideningGivesTheSameBits(t *testing.T) {
+	for _, f := range families {
+		for _, dt := range []checkpoint.DType{checkpoint.F16, checkpoint.BF16} {
+			t.Run(string(f)+"/"+string(dt), func(t *testing.T) {
+				dir := filepath.Join(t.TempDir(), string(f))
+				require.NoError(t, synth.Write(dir, synth.Tiny(f), synth.Options{Seed: 7, DType: dt}))
+				narrow, err := Load(dir, Options{Threads: 1, NoWiden: true})
+				require.NoError(t, err)
+				defer narrow.Close()
+				wide, err := Load(dir, Options{Threads: 2})
+				require.NoError(t, err)
+				defer wide.Close()
+				require.Equal(t, kernels.F32, wide.head.DType, "the small model was not widened")
+				require.Equal(t, kernels.F32, wide.layers[0].up.DType)
+				require.NotEqual(t, kernels.F32, narrow.head.DType, "NoWiden widened")
+				toks := seq(20, 96, 16)
+				h := posHook{heads: narrow.Config.Heads}
+				require.Equal(t, decodeLogProbs(t, narrow, toks, nil), decodeLogProbs(t, wide, toks, nil))
+				require.Equal(t, decodeLogProbs(t, narrow, toks, h), decodeLogProbs(t, wide, toks, h))
+				a, err := narrow.Forward([]*Session{narrow.NewSession()}, [][]int{toks}, nil)
+				require.NoError(t, err)
+				b, err := wide.Forward([]*Session{wide.NewSession()}, [][]int{toks}, nil)
+				require.NoError(t, err)
+				require.Equal(t, a, b)
+			})
+		}
 	}
 }
