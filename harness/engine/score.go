@@ -134,7 +134,7 @@ func (m *Model) Continuations(context []int, conts [][]int, hook Hook) ([]Contin
 		if len(c) == 0 {
 			return nil, fmt.Errorf("continuation %d is empty", b)
 		}
-		sessions[b] = base.Clone()
+		sessions[b] = base.cloneWithRoom(len(c))
 		rows = append(rows, last...)
 		targets = append(targets, c[0])
 		// Rows of the batch: token j predicts token j+1; the last predicts nothing.
@@ -177,11 +177,16 @@ func (m *Model) Continuations(context []int, conts [][]int, hook Hook) ([]Contin
 }
 
 // Clone returns an independent copy of the session's cache.
-func (s *Session) Clone() *Session {
+func (s *Session) Clone() *Session { return s.cloneWithRoom(0) }
+
+// cloneWithRoom is Clone with capacity for rows more positions in every
+// layer's cache, so that appending them copies nothing again.
+func (s *Session) cloneWithRoom(rows int) *Session {
 	c := &Session{m: s.m, n: s.n, k: make([][]float32, len(s.k)), v: make([][]float32, len(s.v)), present: make([][]bool, len(s.k))}
+	extra := rows * s.m.Config.KVHeads * s.m.Config.HeadDim
 	for i := range s.k {
-		c.k[i] = append([]float32(nil), s.k[i]...)
-		c.v[i] = append([]float32(nil), s.v[i]...)
+		c.k[i] = append(make([]float32, 0, len(s.k[i])+extra), s.k[i]...)
+		c.v[i] = append(make([]float32, 0, len(s.v[i])+extra), s.v[i]...)
 		if s.present[i] != nil {
 			c.present[i] = append([]bool(nil), s.present[i]...)
 		}
