@@ -57,25 +57,26 @@ func (s *Session) appendKV(li int, k, v []float32, present []bool) {
 // double the old capacity when that is larger).
 func (s *Session) reserveKV(li, rows int) {
 	kvd := s.m.Config.KVHeads * s.m.Config.HeadDim
-	for _, c := range []*[]float32{&s.k[li], &s.v[li]} {
-		if need := len(*c) + rows*kvd; need > cap(*c) {
-			grown := make([]float32, len(*c), max(2*cap(*c), need))
-			copy(grown, *c)
-			*c = grown
-		}
+	s.k[li] = withRoom(s.k[li], len(s.k[li])+rows*kvd, 0)
+	s.v[li] = withRoom(s.v[li], len(s.v[li])+rows*kvd, 0)
+}
+
+// withRoom returns c with capacity for need values: c itself when it has
+// it, else a copy with capacity max(2·cap(c), need, atLeast).
+func withRoom(c []float32, need, atLeast int) []float32 {
+	if need <= cap(c) {
+		return c
 	}
+	grown := make([]float32, len(c), max(2*cap(c), need, atLeast))
+	copy(grown, c)
+	return grown
 }
 
 // appendDoubling appends row to c, doubling the capacity when it runs out
 // (append alone grows large slices by about a quarter, which re-copies a
 // long cache every few positions).
 func appendDoubling(c, row []float32) []float32 {
-	if len(c)+len(row) > cap(c) {
-		grown := make([]float32, len(c), max(2*cap(c), len(c)+len(row), 64*len(row)))
-		copy(grown, c)
-		c = grown
-	}
-	return append(c, row...)
+	return append(withRoom(c, len(c)+len(row), 64*len(row)), row...)
 }
 
 // Len returns the number of positions cached.
@@ -594,6 +595,13 @@ func (m *Model) attendRows(st *state, li int) {
 	c := m.Config
 	R, hd := len(st.rows), c.HeadDim
 	qd := c.Heads * hd
+	if R == 1 { // a decode step: no jobs to share out
+		var scores []float32
+		for h := 0; h < c.Heads; h++ {
+			scores = m.attendHead(st.a[h*hd:(h+1)*hd], st.q[h*hd:(h+1)*hd], st.sessions[st.rows[0].seq], li, h, st.rows[0].pos+1, scores)
+		}
+		return
+	}
 	type job struct{ r0, r1, h int } // h < 0: row r0 alone, every head
 	var jobs []job
 	for r := 0; r < R; {

@@ -10,7 +10,6 @@ import (
 	"sort"
 	"strings"
 	"sync"
-	"sync/atomic"
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/kernels"
@@ -463,26 +462,17 @@ func (m *Model) packPanels(widen bool) {
 	// Matrices differ in size (the head is a third of OPT-125M), so workers
 	// take the next matrix as they finish rather than fixed shares.
 	panels := make([]*kernels.Panels, len(mats))
-	var next atomic.Int64
-	var wg sync.WaitGroup
-	for range min(m.threads, len(mats)) {
-		wg.Go(func() {
-			for {
-				i := int(next.Add(1)) - 1
-				if i >= len(mats) {
-					return
-				}
-				if widen {
-					widenMat(mats[i])
-				}
-				panels[i] = kernels.PackPanels(mats[i])
-				if t := m.sources[mats[i]]; t != nil {
-					t.Release()
-				}
+	parallelJobs(len(mats), m.threads, func(next func() (int, bool)) {
+		for i, ok := next(); ok; i, ok = next() {
+			if widen {
+				widenMat(mats[i])
 			}
-		})
-	}
-	wg.Wait()
+			panels[i] = kernels.PackPanels(mats[i])
+			if t := m.sources[mats[i]]; t != nil {
+				t.Release()
+			}
+		}
+	})
 	for i, w := range mats {
 		w.Panels = panels[i]
 	}

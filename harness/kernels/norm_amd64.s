@@ -5,14 +5,25 @@
 // LayerNorm's passes, eight floats per block: the low four widen into Y14
 // (lanes 0–3 of acc) and the high four into Y15 (lanes 4–7).
 
+// ACCLOAD loads the eight lane sums at R8 into Y14 and Y15 and zeroes DI.
+#define ACCLOAD \
+	VMOVUPD (R8), Y14; \
+	VMOVUPD 32(R8), Y15; \
+	XORQ    DI, DI
+
+// ACCSTORE writes Y14 and Y15 back to the lane sums at R8 and returns.
+#define ACCSTORE \
+	VMOVUPD Y14, (R8); \
+	VMOVUPD Y15, 32(R8); \
+	VZEROUPPER; \
+	RET
+
 // func lnSumAVX2(x *float32, n int, acc *[8]float64)
 TEXT ·lnSumAVX2(SB), NOSPLIT, $0-24
 	MOVQ      x+0(FP), SI
 	MOVQ      n+8(FP), CX
 	MOVQ      acc+16(FP), R8
-	VMOVUPD   (R8), Y14
-	VMOVUPD   32(R8), Y15
-	XORQ      DI, DI
+	ACCLOAD
 
 sumloop:
 	VCVTPS2PD (SI)(DI*4), Y0
@@ -22,11 +33,7 @@ sumloop:
 	ADDQ      $8, DI
 	CMPQ      DI, CX
 	JLT       sumloop
-
-	VMOVUPD   Y14, (R8)
-	VMOVUPD   Y15, 32(R8)
-	VZEROUPPER
-	RET
+	ACCSTORE
 
 // func lnSqAVX2(x *float32, n int, mean float64, acc *[8]float64)
 TEXT ·lnSqAVX2(SB), NOSPLIT, $0-32
@@ -34,9 +41,7 @@ TEXT ·lnSqAVX2(SB), NOSPLIT, $0-32
 	MOVQ         n+8(FP), CX
 	VBROADCASTSD mean+16(FP), Y13
 	MOVQ         acc+24(FP), R8
-	VMOVUPD      (R8), Y14
-	VMOVUPD      32(R8), Y15
-	XORQ         DI, DI
+	ACCLOAD
 
 sqloop:
 	VCVTPS2PD    (SI)(DI*4), Y0
@@ -50,11 +55,7 @@ sqloop:
 	ADDQ         $8, DI
 	CMPQ         DI, CX
 	JLT          sqloop
-
-	VMOVUPD      Y14, (R8)
-	VMOVUPD      Y15, 32(R8)
-	VZEROUPPER
-	RET
+	ACCSTORE
 
 // func lnApplyAVX2(dst, x *float32, n int, mean, inv float64, gamma, beta *float32)
 //
