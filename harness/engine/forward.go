@@ -518,9 +518,11 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 		return
 	}
 	kc := headColumns(groups, hd)
-	kernels.LinearGatherParallel(q[:len(heads)*hd], h, L.q, L.qB, headColumns(heads, hd), m.threads)
-	kernels.LinearGatherParallel(k[:len(kc)], h, L.k, L.kB, kc, m.threads)
-	kernels.LinearGatherParallel(v[:len(kc)], h, L.v, L.vB, kc, m.threads)
+	kernels.LinearGatherParts(h, []kernels.GatherPart{
+		{Y: q[:len(heads)*hd], W: L.q, Bias: L.qB, Idx: headColumns(heads, hd)},
+		{Y: k[:len(kc)], W: L.k, Bias: L.kB, Idx: kc},
+		{Y: v[:len(kc)], W: L.v, Bias: L.vB, Idx: kc},
+	}, m.threads)
 }
 
 // attendHead computes one query head's causal softmax attention over the

@@ -44,3 +44,39 @@ func LinearScatterInParallel(y, h []float32, w *Mat, bias []float32, idx []int32
 		}
 	})
 }
+
+// GatherPart is one product of [LinearGatherParts]: Y[r] = Bias[Idx[r]] +
+// Σ_k x[k]·W[Idx[r]][k], with LinearGather's arguments and contract.
+type GatherPart struct {
+	Y    []float32
+	W    *Mat
+	Bias []float32
+	Idx  []int32
+}
+
+// LinearGatherParts runs LinearGather for every part over the same input x,
+// as one fan-out of jobs of kept outputs across all parts on up to threads
+// goroutines (a decode step's query, key and value gathers pay for one
+// hand-off instead of three). Each output is the bits LinearGather gives it.
+func LinearGatherParts(x []float32, parts []GatherPart, threads int) {
+	type job struct{ part, r0, r1 int }
+	var jobs []job
+	work := 0
+	for i, p := range parts {
+		if len(p.Y) != len(p.Idx) {
+			panic(msgGatherY)
+		}
+		for r0 := 0; r0 < len(p.Idx); r0 += gatherJob {
+			jobs = append(jobs, job{i, r0, min(r0+gatherJob, len(p.Idx))})
+		}
+		work += len(p.Idx) * p.W.In
+	}
+	workers := workerCount(threads, len(jobs), work)
+	runJobs(len(jobs), workers, func() func(int) {
+		return func(j int) {
+			b := jobs[j]
+			p := parts[b.part]
+			LinearGather(p.Y[b.r0:b.r1], x, p.W, p.Bias, p.Idx[b.r0:b.r1])
+		}
+	})
+}

@@ -3,6 +3,8 @@ package kernels_test
 import (
 	"testing"
 
+	"github.com/stretchr/testify/require"
+
 	"sparsegate/harness/kernels"
 )
 
@@ -40,6 +42,23 @@ func TestParallelGathersMatchSequential(t *testing.T) {
 						t.Fatalf("%v transposed=%v threads=%d: gather[%d] = %v, want %v", dt, tr, th, i, got[i], want[i])
 					}
 				}
+				// The same gather as two parts of one fan-out, beside a
+				// part over every output.
+				half := len(idx) / 2
+				all := make([]int32, out)
+				for i := range all {
+					all[i] = int32(i)
+				}
+				wantAll := make([]float32, out)
+				kernels.LinearGather(wantAll, x, w, nil, all)
+				p0, p1, pAll := make([]float32, half), make([]float32, len(idx)-half), make([]float32, out)
+				kernels.LinearGatherParts(x, []kernels.GatherPart{
+					{Y: p0, W: w, Bias: bias, Idx: idx[:half]},
+					{Y: pAll, W: w, Idx: all},
+					{Y: p1, W: w, Bias: bias, Idx: idx[half:]},
+				}, th)
+				require.Equal(t, want, append(p0, p1...), "%v transposed=%v threads=%d: parts", dt, tr, th)
+				require.Equal(t, wantAll, pAll, "%v transposed=%v threads=%d: part over every output", dt, tr, th)
 				gotS := make([]float32, in)
 				kernels.LinearScatterInParallel(gotS, h, wt, nil, inIdx, th)
 				for i := range gotS {

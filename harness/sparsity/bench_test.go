@@ -136,7 +136,7 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	idx := make([]int32, 0, cfg.FFN)
 	b.Run("keep10", func(b *testing.B) {
 		for range b.N {
-			sc.scores(scores, ph, x)
+			sc.scores(scores, ph, x, 1)
 			idx = topKInto(idx, order, scores, k)
 			kernels.LinearGather(hid[:k], x, up, nil, idx)
 			kernels.ReLU(hid[:k])

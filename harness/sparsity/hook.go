@@ -20,7 +20,7 @@ type HookOptions struct {
 	// Recall also measures, per token, the recall of the kept set against
 	// the oracle set of the same size; it costs a Token.Dense call per unit.
 	Recall bool
-	// Threads, when > 0, bounds the kernel workers of batched predictor
+	// Threads, when > 0, bounds the kernel workers of predictor
 	// scoring (0: the base model's thread count). Results do not depend on it.
 	Threads int
 }
@@ -74,7 +74,7 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 
 // hook is the engine.Hook of a build.
 type hook struct {
-	threads int           // kernel workers for batched predictor scoring
+	threads int           // kernel workers for predictor scoring
 	sel     [][2]selector // by layer, mlp then attention
 	stats   *Stats
 	recall  bool
@@ -102,18 +102,21 @@ type selector struct {
 
 // scorer evaluates a predictor with its matrices bound once. It gives
 // Predictor.Scores bit for bit: LinearGather over every row equals Linear
-// element for element (the kernels' contract), and runs in the calling
-// goroutine without allocating.
+// element for element (the kernels' contract), whatever the thread count.
 type scorer struct {
 	p          *Predictor
 	w1, w2     kernels.Mat
 	rows1, all []int32 // 0..Rank-1 and 0..Out-1
 }
 
-func (s *scorer) scores(dst, hidden, x []float32) {
+// scores writes one token's scores into dst (hidden is rank-sized scratch).
+// The small first product runs in the calling goroutine; the second, which
+// holds most of the predictor's weights, splits its outputs over up to
+// threads goroutines.
+func (s *scorer) scores(dst, hidden, x []float32, threads int) {
 	kernels.LinearGather(hidden, x, &s.w1, s.p.B1, s.rows1)
 	kernels.ReLU(hidden)
-	kernels.LinearGather(dst, hidden, &s.w2, s.p.B2, s.all)
+	kernels.LinearGatherParallel(dst, hidden, &s.w2, s.p.B2, s.all, threads)
 }
 
 // iota32 returns 0, 1, …, n-1.
@@ -168,7 +171,7 @@ func (h *hook) choose(s *selector, input, prev []float32, dense func() []float32
 			x = prev
 		}
 		scores := h.mag[:s.width]
-		s.pred.scores(scores, h.hidden[:s.pred.p.Rank], x)
+		s.pred.scores(scores, h.hidden[:s.pred.p.Rank], x, h.threads)
 		kept = topKInto(out, h.order, scores, s.rule.K)
 	default:
 		panic("sparsity: hook reached a rule that Open should have refused")
