@@ -68,10 +68,13 @@ func predictorBuild(b *testing.B, m *engine.Model, keepMLP, keepHeads float64) *
 	for l := range cfg.Layers {
 		man.Layers[l] = LayerRules{Layer: l, MLP: Rule{Mode: PredictorMode, K: int(keepMLP * float64(cfg.FFN)), Rank: 64, Input: InputSelf},
 			Attention: Rule{Mode: Dense}}
+		// Weights rounded to binary16, as sparsify writes them.
 		preds[Unit{l, MLP}] = randomPredictor(cfg.Hidden, 64, cfg.FFN, uint64(l))
+		preds[Unit{l, MLP}].RoundToHalf()
 		if keepHeads > 0 {
 			man.Layers[l].Attention = Rule{Mode: PredictorMode, K: int(keepHeads * float64(cfg.Heads)), Rank: 16, Input: InputSelf}
 			preds[Unit{l, Attention}] = randomPredictor(cfg.Hidden, 16, cfg.Heads, uint64(100+l))
+			preds[Unit{l, Attention}].RoundToHalf()
 		}
 	}
 	bld, err := New(m, man, preds)
@@ -127,9 +130,8 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	// the panel copies Build packed, top-k into reused scratch.
 	u := Unit{0, MLP}
 	p := bld.Predictor(u)
-	w1, w2 := p.mats()
-	w1.Panels, w2.Panels = bld.panels[u][0], bld.panels[u][1]
-	sc := &scorer{p: p, w1: *w1, w2: *w2, rows1: iota32(p.Rank), all: iota32(p.Out)}
+	ms := bld.scoring[u]
+	sc := &scorer{p: p, w1: ms[0], w2: ms[1], rows1: iota32(p.Rank), all: iota32(p.Out)}
 	scores, ph := make([]float32, cfg.FFN), make([]float32, p.Rank)
 	order := make([]uint64, 2*cfg.FFN)
 	k := bld.Rule(u).K

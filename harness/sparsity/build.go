@@ -28,10 +28,10 @@ type Build struct {
 	// Base is the loaded dense base.
 	Base *engine.Model
 
-	rules  []LayerRules // by layer
-	preds  map[Unit]*Predictor
-	panels map[Unit][2]*kernels.Panels // each predictor's two matrices, k-major (kernels.PackPanels)
-	owns   bool                        // Close closes Base
+	rules   []LayerRules // by layer
+	preds   map[Unit]*Predictor
+	scoring map[Unit][2]kernels.Mat // each predictor's two matrices as the hooks score with them (Predictor.scoringMats)
+	owns    bool                    // Close closes Base
 }
 
 // Open reads DIR/manifest.json, checks it against its base checkpoint, loads
@@ -110,7 +110,7 @@ func New(base *engine.Model, m *Manifest, predictors map[Unit]*Predictor) (*Buil
 func newBuild(base *engine.Model, m *Manifest, preds map[Unit]*Predictor) (*Build, error) {
 	cfg := base.Config
 	b := &Build{Manifest: m, Base: base, rules: make([]LayerRules, cfg.Layers), preds: map[Unit]*Predictor{},
-		panels: map[Unit][2]*kernels.Panels{}}
+		scoring: map[Unit][2]kernels.Mat{}}
 	for _, lr := range m.Layers {
 		b.rules[lr.Layer] = lr
 	}
@@ -134,11 +134,10 @@ func newBuild(base *engine.Model, m *Manifest, preds map[Unit]*Predictor) (*Buil
 			continue
 		}
 		b.preds[u] = p
-		// The hooks score one token at a time; the panel copies (a second
-		// copy of the predictor's weights) let the single-vector products
-		// stream them, with the same bits.
-		w1, w2 := p.mats()
-		b.panels[u] = [2]*kernels.Panels{kernels.PackPanels(w1), kernels.PackPanels(w2)}
+		// The hooks score one token at a time; the panel copies (in
+		// binary16 when the weights are binary16 values) let the
+		// single-vector products stream them, with the same bits.
+		b.scoring[u] = p.scoringMats()
 	}
 	if len(errs) > 0 {
 		return nil, errors.Join(errs...)
@@ -249,10 +248,19 @@ func readPredictors(file string, m *Manifest, cfg *checkpoint.Config, pos positi
 				switch {
 				case !found:
 					msg = fmt.Sprintf("%s: tensor %q is missing; retrain this unit's predictor or change its mode", file, name)
-				case t.DType != checkpoint.F32:
-					msg = fmt.Sprintf("%s: tensor %q is %s; predictor weights must be F32", file, name, t.DType)
+				case t.DType != checkpoint.F32 && (t.DType != checkpoint.F16 || part.name[0] != 'w'):
+					msg = fmt.Sprintf("%s: tensor %q is %s; predictor matrices must be F16 or F32 and biases F32", file, name, t.DType)
 				case !slices.Equal(t.Shape, part.shape):
 					msg = fmt.Sprintf("%s: tensor %q has shape %v, but rank %d needs %v; fix rank or retrain the predictor", file, name, t.Shape, r.Rank, part.shape)
+				case t.DType == checkpoint.F16:
+					h, err := t.Uint16s()
+					if err != nil {
+						msg = err.Error()
+						break
+					}
+					for j, b := range h {
+						part.dst[j] = kernels.F16Value(b)
+					}
 				default:
 					v, err := t.Float32s()
 					if err != nil {
@@ -278,8 +286,10 @@ func readPredictors(file string, m *Manifest, cfg *checkpoint.Config, pos positi
 	return preds, list
 }
 
-// WritePredictors writes predictors, keyed by unit, as an F32 safetensors
-// file at path (atomically), named as PredictorTensorName gives, in unit order.
+// WritePredictors writes predictors, keyed by unit, as a safetensors file at
+// path (atomically), named as PredictorTensorName gives, in unit order: a
+// matrix whose weights are all binary16 values (Predictor.RoundToHalf) as
+// F16, any other as F32; biases as F32.
 func WritePredictors(path string, predictors map[Unit]*Predictor) error {
 	units := make([]Unit, 0, len(predictors))
 	for u := range predictors {
@@ -297,8 +307,12 @@ func WritePredictors(path string, predictors map[Unit]*Predictor) error {
 			v     []float32
 			shape []int
 		}{{"w1", p.W1, []int{p.Rank, p.In}}, {"b1", p.B1, []int{p.Rank}}, {"w2", p.W2, []int{p.Out, p.Rank}}, {"b2", p.B2, []int{p.Out}}} {
-			tensors = append(tensors, checkpoint.NamedTensor{Name: PredictorTensorName(u, part.name),
-				DType: checkpoint.F32, Shape: part.shape, Data: checkpoint.EncodeF32(part.v)})
+			t := checkpoint.NamedTensor{Name: PredictorTensorName(u, part.name),
+				DType: checkpoint.F32, Shape: part.shape, Data: checkpoint.EncodeF32(part.v)}
+			if h, ok := halfExact(part.v); ok && part.name[0] == 'w' {
+				t.DType, t.Data = checkpoint.F16, checkpoint.EncodeU16(h)
+			}
+			tensors = append(tensors, t)
 		}
 	}
 	return checkpoint.Write(path, tensors, map[string]string{"format": FormatName + "-predictors"})

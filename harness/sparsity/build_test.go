@@ -12,6 +12,7 @@ import (
 
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/engine"
+	"sparsegate/harness/kernels"
 	"sparsegate/harness/synth"
 )
 
@@ -191,7 +192,14 @@ func TestOpenRefusesBadBuilds(t *testing.T) {
 					nt.DType, nt.Data = checkpoint.F16, make([]byte, 8)
 				}
 			})
-		}, want: []string{`tensor "layers.1.mlp.b1" is F16; predictor weights must be F32`}},
+		}, want: []string{`tensor "layers.1.mlp.b1" is F16; predictor matrices must be F16 or F32 and biases F32`}},
+		{name: "tensor dtype matrix", pred: func() {
+			writePredParts(func(p string, nt *checkpoint.NamedTensor) {
+				if p == "w2" {
+					nt.DType, nt.Data = checkpoint.BF16, make([]byte, 2*64*4)
+				}
+			})
+		}, want: []string{`tensor "layers.1.mlp.w2" is BF16; predictor matrices must be F16 or F32 and biases F32`}},
 		{name: "tensor NaN", pred: func() {
 			writePredParts(func(p string, nt *checkpoint.NamedTensor) {
 				if p == "w2" {
@@ -308,4 +316,69 @@ func TestPredictorFileRoundTrip(t *testing.T) {
 	bad.B1[1] = float32(math.Inf(1))
 	err = WritePredictors(path, map[Unit]*Predictor{{1, MLP}: bad})
 	require.ErrorContains(t, err, "layer 1 mlp: predictor b1 holds a non-finite value at element 1")
+}
+
+// A predictor rounded to binary16 is written with F16 matrices (F32 biases),
+// opens to the same values, scores with binary16 panels, and its hook gives
+// Predictor.Scores bit for bit; an unrounded one stays F32 throughout. A
+// weight past the binary16 range leaves the predictor unrounded.
+func TestHalfPredictorsRoundTrip(t *testing.T) {
+	fx := newFixture(t, checkpoint.OPT, nil)
+	half := randomPredictor(32, 4, 64, 21)
+	orig := half.clone()
+	require.True(t, half.RoundToHalf())
+	require.NotEqual(t, orig.W1, half.W1, "rounding changed some weights")
+	require.Equal(t, orig.B2, half.B2, "biases stay float32")
+	full := randomPredictor(32, 4, 64, 22)
+	preds := map[Unit]*Predictor{{0, MLP}: half, {1, MLP}: full}
+	m := fx.manifest(func(u Unit) Rule {
+		if u.Component == MLP {
+			return Rule{Mode: PredictorMode, K: 8, Rank: 4, Input: InputSelf}
+		}
+		return Rule{Mode: Dense}
+	})
+	dir := fx.write(m, preds)
+	f, err := checkpoint.Open(filepath.Join(dir, "predictors.safetensors"))
+	require.NoError(t, err)
+	dtypes := map[string]checkpoint.DType{}
+	for _, tn := range f.Tensors() {
+		dtypes[tn.Name] = tn.DType
+	}
+	f.Close()
+	require.Equal(t, map[string]checkpoint.DType{
+		"layers.0.mlp.w1": checkpoint.F16, "layers.0.mlp.b1": checkpoint.F32,
+		"layers.0.mlp.w2": checkpoint.F16, "layers.0.mlp.b2": checkpoint.F32,
+		"layers.1.mlp.w1": checkpoint.F32, "layers.1.mlp.b1": checkpoint.F32,
+		"layers.1.mlp.w2": checkpoint.F32, "layers.1.mlp.b2": checkpoint.F32,
+	}, dtypes)
+
+	b := fx.open(dir)
+	for u, want := range preds {
+		got := b.Predictor(u)
+		require.Equal(t, want.W1, got.W1, "%s", u)
+		require.Equal(t, want.W2, got.W2, "%s", u)
+		sm := b.scoring[u]
+		wantDT := kernels.F32
+		if u.Layer == 0 {
+			wantDT = kernels.F16
+		}
+		require.Equal(t, wantDT, sm[0].DType, "%s", u)
+		require.Equal(t, wantDT, sm[1].DType, "%s", u)
+		x := make([]float32, 32)
+		for i := range x {
+			x[i] = float32(i%5) - 1.5
+		}
+		want, hidden := make([]float32, 64), make([]float32, 4)
+		got.Scores(want, hidden, x)
+		sc := &scorer{p: got, w1: sm[0], w2: sm[1], rows1: iota32(4), all: iota32(64)}
+		mine := make([]float32, 64)
+		sc.scores(mine, hidden, x, 2)
+		require.Equal(t, want, mine, "%s: scores from the scoring matrices", u)
+	}
+
+	big := randomPredictor(32, 4, 64, 23)
+	big.W2[3] = 1e6
+	kept := big.clone()
+	require.False(t, big.RoundToHalf())
+	require.Equal(t, kept, big)
 }

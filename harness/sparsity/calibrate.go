@@ -237,6 +237,10 @@ func Calibrate(base *engine.Model, baseDir string, text []byte, outDir string, o
 			if err != nil {
 				return nil, fmt.Errorf("%s: training the predictor: %w", u, err)
 			}
+			// The build stores the matrices in binary16 (half the bytes a
+			// decode step streams); k and the recall are measured on the
+			// rounded weights the build will run.
+			p.RoundToHalf()
 			hx, hy, hn := x[nt*cfg.Hidden:], y[nt*c.width:], n-nt
 			k := c.k
 			if c.c == MLP && opts.Recall > 0 {

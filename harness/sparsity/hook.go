@@ -60,9 +60,8 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 				}
 			case PredictorMode:
 				p := b.preds[u]
-				w1, w2 := p.mats()
-				w1.Panels, w2.Panels = b.panels[u][0], b.panels[u][1]
-				s.pred = &scorer{p: p, w1: *w1, w2: *w2, rows1: iota32(p.Rank), all: iota32(p.Out)}
+				m := b.scoring[u]
+				s.pred = &scorer{p: p, w1: m[0], w2: m[1], rows1: iota32(p.Rank), all: iota32(p.Out)}
 				if len(h.hidden) < p.Rank {
 					h.hidden = make([]float32, p.Rank)
 				}

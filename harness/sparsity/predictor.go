@@ -66,6 +66,57 @@ func TopK(dst []int32, scores []float32, k int) []int32 {
 
 // mats views the predictor's two layers as weight matrices: W1 Rank×In and
 // W2 Out×Rank.
+// halfExact returns v's binary16 patterns when every value is exactly a
+// binary16 number (so the half copy widens back to the same bits), and
+// false otherwise.
+func halfExact(v []float32) ([]uint16, bool) {
+	h := make([]uint16, len(v))
+	for i, x := range v {
+		h[i] = kernels.F16Bits(x)
+		if math.Float32bits(kernels.F16Value(h[i])) != math.Float32bits(x) {
+			return nil, false
+		}
+	}
+	return h, true
+}
+
+// RoundToHalf rounds the two weight matrices to the nearest binary16 values
+// (the biases stay float32), so that a build stores them in half the bytes
+// and a decode step reads half as much. It reports false, leaving p
+// unchanged, when a weight would overflow binary16.
+func (p *Predictor) RoundToHalf() bool {
+	for _, w := range [][]float32{p.W1, p.W2} {
+		for _, x := range w {
+			if math.IsInf(float64(kernels.F16Value(kernels.F16Bits(x))), 0) {
+				return false
+			}
+		}
+	}
+	for _, w := range [][]float32{p.W1, p.W2} {
+		for i, x := range w {
+			w[i] = kernels.F16Value(kernels.F16Bits(x))
+		}
+	}
+	return true
+}
+
+// scoringMats returns the predictor's two matrices as the hooks score with
+// them: in binary16 when every weight is a binary16 value (the same bits as
+// the float32 matrices of mats, half the bytes to stream), each with its
+// panel copy.
+func (p *Predictor) scoringMats() [2]kernels.Mat {
+	w1, w2 := p.mats()
+	var out [2]kernels.Mat
+	for i, w := range []*kernels.Mat{w1, w2} {
+		if h, ok := halfExact(w.F32); ok {
+			w = &kernels.Mat{DType: kernels.F16, Out: w.Out, In: w.In, Half: h}
+		}
+		w.Panels = kernels.PackPanels(w)
+		out[i] = *w
+	}
+	return out
+}
+
 func (p *Predictor) mats() (w1, w2 *kernels.Mat) {
 	return &kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1},
 		&kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2}
