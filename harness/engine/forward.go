@@ -473,7 +473,7 @@ func (m *Model) attentionHooked(st *state, li int) {
 			if L.oT != nil {
 				o = L.oT
 			}
-			kernels.LinearScatterInParallel(y, a[:nq*hd], o, L.oB, headColumns(heads, hd), m.threads)
+			m.scratch.LinearScatterInParallel(y, a[:nq*hd], o, L.oB, headColumns(heads, hd), m.threads)
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
@@ -504,7 +504,7 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 			idx = append(idx, int32(2*d)+j)
 		}
 		out := make([]float32, len(idx))
-		kernels.LinearGatherParallel(out, h, L.qkv, L.qkvB, idx, m.threads)
+		m.scratch.LinearGatherParallel(out, h, L.qkv, L.qkvB, idx, m.threads)
 		nq, nk := len(heads)*hd, len(kc)
 		copy(q, out[:nq])
 		copy(k, out[nq:nq+nk])
@@ -518,7 +518,7 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 		return
 	}
 	kc := headColumns(groups, hd)
-	kernels.LinearGatherParts(h, []kernels.GatherPart{
+	m.scratch.LinearGatherParts(h, []kernels.GatherPart{
 		{Y: q[:len(heads)*hd], W: L.q, Bias: L.qB, Idx: headColumns(heads, hd)},
 		{Y: k[:len(kc)], W: L.k, Bias: L.kB, Idx: kc},
 		{Y: v[:len(kc)], W: L.v, Bias: L.vB, Idx: kc},
@@ -818,7 +818,7 @@ func (m *Model) mlp(st *state, li int) {
 			if L.downT != nil {
 				down = L.downT
 			}
-			kernels.LinearScatterInParallel(y, u[:len(idx[r])], down, L.downB, idx[r], m.threads)
+			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], down, L.downB, idx[r], m.threads)
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
@@ -843,7 +843,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	if idx == nil {
 		m.scratch.Linear(dst, h, 1, L.up, L.upB, m.threads)
 	} else {
-		kernels.LinearGatherParallel(dst, h, L.up, L.upB, idx, m.threads)
+		m.scratch.LinearGatherParallel(dst, h, L.up, L.upB, idx, m.threads)
 	}
 	if L.gate == nil {
 		m.activate(dst)
@@ -853,7 +853,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	if idx == nil {
 		m.scratch.Linear(g, h, 1, L.gate, nil, m.threads)
 	} else {
-		kernels.LinearGatherParallel(g, h, L.gate, nil, idx, m.threads)
+		m.scratch.LinearGatherParallel(g, h, L.gate, nil, idx, m.threads)
 	}
 	kernels.SiLUMul(g, dst)
 	copy(dst, g)

@@ -108,6 +108,11 @@ func Load(dir string, opts Options) (*Model, error) {
 	if m.threads <= 0 {
 		m.threads = runtime.NumCPU()
 	}
+	if m.threads > 1 {
+		// Helpers that stay awake between the short parallel regions of
+		// a single-token step (started on first use, stopped by Close).
+		m.scratch.Team = kernels.NewTeam(m.threads - 1)
+	}
 	if err := m.bind(); err != nil {
 		w.Close()
 		return nil, err
@@ -168,8 +173,14 @@ func (m *Model) Close() error {
 	if m.borrowed {
 		return nil
 	}
+	m.scratch.Team.Close()
 	return m.weights.Close()
 }
+
+// Scratch returns the packing buffers and helper team the model's products
+// run on, for a hook that runs its own products within the model's calls
+// (kernels.Scratch is safe for concurrent use).
+func (m *Model) Scratch() *kernels.Scratch { return m.scratch }
 
 // Weights returns the checkpoint's weight set (for inspection and hashing).
 func (m *Model) Weights() *checkpoint.Weights { return m.weights }

@@ -8,16 +8,21 @@ const gatherJob = 64
 // LinearGatherParallel is LinearGather with the kept outputs split over up to
 // threads goroutines; the result is the same bits.
 func LinearGatherParallel(y, x []float32, w *Mat, bias []float32, idx []int32, threads int) {
+	(*Scratch)(nil).LinearGatherParallel(y, x, w, bias, idx, threads)
+}
+
+// LinearGatherParallel is the package-level LinearGatherParallel, on s's Team.
+func (s *Scratch) LinearGatherParallel(y, x []float32, w *Mat, bias []float32, idx []int32, threads int) {
 	if len(y) != len(idx) {
 		panic(msgGatherY)
 	}
 	jobs := (len(idx) + gatherJob - 1) / gatherJob
-	workers := workerCount(threads, jobs, len(idx)*w.In)
+	workers := workerCount(s.team(), threads, jobs, len(idx)*w.In)
 	if workers <= 1 {
 		LinearGather(y, x, w, bias, idx)
 		return
 	}
-	runJobs(jobs, workers, func() func(int) {
+	runJobs(s.team(), jobs, workers, func() func(int) {
 		return func(j int) {
 			r0, r1 := j*gatherJob, min((j+1)*gatherJob, len(idx))
 			LinearGather(y[r0:r1], x, w, bias, idx[r0:r1])
@@ -29,14 +34,20 @@ func LinearGatherParallel(y, x []float32, w *Mat, bias []float32, idx []int32, t
 // to threads goroutines; the result is the same bits. It pays off for the
 // Transposed (input-major) layout, where each kept input is a contiguous row.
 func LinearScatterInParallel(y, h []float32, w *Mat, bias []float32, idx []int32, threads int) {
+	(*Scratch)(nil).LinearScatterInParallel(y, h, w, bias, idx, threads)
+}
+
+// LinearScatterInParallel is the package-level LinearScatterInParallel, on
+// s's Team.
+func (s *Scratch) LinearScatterInParallel(y, h []float32, w *Mat, bias []float32, idx []int32, threads int) {
 	if !w.Transposed {
 		LinearScatterIn(y, h, w, bias, idx)
 		return
 	}
 	checkScatter(y, h, w, bias, idx)
 	jobs := (w.Out + gemvColsJob - 1) / gemvColsJob
-	workers := workerCount(threads, jobs, len(idx)*w.Out)
-	runJobs(jobs, workers, func() func(int) {
+	workers := workerCount(s.team(), threads, jobs, len(idx)*w.Out)
+	runJobs(s.team(), jobs, workers, func() func(int) {
 		var buf [gemvColsJob]float32
 		return func(job int) {
 			j0 := job * gemvColsJob
@@ -59,6 +70,11 @@ type GatherPart struct {
 // goroutines (a decode step's query, key and value gathers pay for one
 // hand-off instead of three). Each output is the bits LinearGather gives it.
 func LinearGatherParts(x []float32, parts []GatherPart, threads int) {
+	(*Scratch)(nil).LinearGatherParts(x, parts, threads)
+}
+
+// LinearGatherParts is the package-level LinearGatherParts, on s's Team.
+func (s *Scratch) LinearGatherParts(x []float32, parts []GatherPart, threads int) {
 	type job struct{ part, r0, r1 int }
 	var jobs []job
 	work := 0
@@ -71,8 +87,8 @@ func LinearGatherParts(x []float32, parts []GatherPart, threads int) {
 		}
 		work += len(p.Idx) * p.W.In
 	}
-	workers := workerCount(threads, len(jobs), work)
-	runJobs(len(jobs), workers, func() func(int) {
+	workers := workerCount(s.team(), threads, len(jobs), work)
+	runJobs(s.team(), len(jobs), workers, func() func(int) {
 		return func(j int) {
 			b := jobs[j]
 			p := parts[b.part]

@@ -39,7 +39,7 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 	n, k := w.Out, w.In
 	rowPanels := (m + mr - 1) / mr
 	colJobs := (n + ncJob - 1) / ncJob
-	workers := workerCount(threads, colJobs*rowPanels, m*n*k)
+	workers := workerCount(sc.team(), threads, colJobs*rowPanels, m*n*k)
 	// Split the rows when the column blocks alone leave workers idle.
 	split := 1
 	if colJobs < jobsPerWorker*workers {
@@ -54,7 +54,7 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 		packA(pa, x, m, k, 0, rowPanels)
 	} else {
 		const group = mcSplit / mr
-		runJobs((rowPanels+group-1)/group, workers, func() func(int) {
+		runJobs(sc.team(), (rowPanels+group-1)/group, workers, func() func(int) {
 			return func(job int) {
 				packA(pa, x, m, k, job*group, min((job+1)*group, rowPanels))
 			}
@@ -63,7 +63,7 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 
 	ws := &workerScratch{s: sc, sets: make([]*gemmScratch, max(workers, 1))}
 	defer sc.put(ws.sets)
-	runJobs(colJobs*split, workers, func() func(int) {
+	runJobs(sc.team(), colJobs*split, workers, func() func(int) {
 		s := ws.take()
 		return func(job int) {
 			j0 := (job / split) * ncJob

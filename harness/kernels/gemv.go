@@ -10,10 +10,10 @@ const (
 // gemvRows computes y[j] = bias[j] + Σ_k x[k]·W[j][k] for an Out×In W by
 // streaming its rows: eight rows at a time (then four, then one), each with
 // its own single accumulator running in ascending k.
-func gemvRows(y, x []float32, w *Mat, bias []float32, threads int) {
+func gemvRows(team *Team, y, x []float32, w *Mat, bias []float32, threads int) {
 	nJobs := (w.Out + gemvRowsJob - 1) / gemvRowsJob
-	workers := workerCount(threads, nJobs, w.Out*w.In)
-	runJobs(nJobs, workers, func() func(int) {
+	workers := workerCount(team, threads, nJobs, w.Out*w.In)
+	runJobs(team, nJobs, workers, func() func(int) {
 		var buf []float32
 		if w.DType != F32 {
 			buf = make([]float32, gemvBuf)
@@ -93,10 +93,10 @@ func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int3
 
 // gemvCols computes y[j] = bias[j] + Σ_k x[k]·W[j][k] for a W stored In×Out
 // by streaming its storage rows: for each k in ascending order, y += x[k]·row.
-func gemvCols(y, x []float32, w *Mat, bias []float32, threads int) {
+func gemvCols(team *Team, y, x []float32, w *Mat, bias []float32, threads int) {
 	nJobs := (w.Out + gemvColsJob - 1) / gemvColsJob
-	workers := workerCount(threads, nJobs, w.Out*w.In)
-	runJobs(nJobs, workers, func() func(int) {
+	workers := workerCount(team, threads, nJobs, w.Out*w.In)
+	runJobs(team, nJobs, workers, func() func(int) {
 		var buf []float32
 		if w.DType != F32 {
 			buf = make([]float32, gemvColsJob)

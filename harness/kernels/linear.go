@@ -36,11 +36,11 @@ func linear(s *Scratch, y, x []float32, m int, w *Mat, bias []float32, threads i
 	}
 	if m == 1 {
 		if w.Panels != nil {
-			gemvPanels(y, x, w, bias, threads)
+			gemvPanels(s.team(), y, x, w, bias, threads)
 		} else if w.Transposed {
-			gemvCols(y, x, w, bias, threads)
+			gemvCols(s.team(), y, x, w, bias, threads)
 		} else {
-			gemvRows(y, x, w, bias, threads)
+			gemvRows(s.team(), y, x, w, bias, threads)
 		}
 		return
 	}

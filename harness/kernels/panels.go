@@ -145,11 +145,11 @@ func panelRows(out, x []float32, w *Mat, bias []float32, list []int) {
 // gemvPanels is the m == 1 Linear over w's panels: jobs of panelGroup
 // panels, each output computed by one job alone, so the bits do not depend
 // on threads.
-func gemvPanels(y, x []float32, w *Mat, bias []float32, threads int) {
+func gemvPanels(team *Team, y, x []float32, w *Mat, bias []float32, threads int) {
 	np := panelCount(w.Out)
 	nJobs := (np + panelGroup - 1) / panelGroup
-	workers := workerCount(threads, nJobs, w.Out*w.In)
-	runJobs(nJobs, workers, func() func(int) {
+	workers := workerCount(team, threads, nJobs, w.Out*w.In)
+	runJobs(team, nJobs, workers, func() func(int) {
 		var list [panelGroup]int
 		return func(job int) {
 			p0 := job * panelGroup

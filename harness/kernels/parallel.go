@@ -7,10 +7,14 @@ import (
 
 // workerCount picks how many goroutines run nJobs jobs of a problem with
 // work multiply-adds in total: at most threads, at most nJobs, and few
-// enough that each worker gets at least minWorkPerWorker multiply-adds.
-// The count affects only scheduling, never the arithmetic.
-func workerCount(threads, nJobs, work int) int {
-	const minWorkPerWorker = 1 << 17
+// enough that each worker gets at least a minimum of multiply-adds, smaller
+// when team has helpers awake to hand work to than when each region starts
+// fresh goroutines. The count affects only scheduling, never the arithmetic.
+func workerCount(team *Team, threads, nJobs, work int) int {
+	minWorkPerWorker := 1 << 17
+	if team.helping() {
+		minWorkPerWorker = 1 << 14
+	}
 	w := threads
 	if w > nJobs {
 		w = nJobs
@@ -24,12 +28,14 @@ func workerCount(threads, nJobs, work int) int {
 	return w
 }
 
-// runJobs runs jobs 0…nJobs-1 on workers goroutines. Each worker is set up
-// once by newWorker (for its scratch buffers) and then takes the next job
-// index until none are left. The calling goroutine is one of the workers, so
-// a call starts working at once and a helper that wakes late only takes the
-// jobs that are left; with one worker everything runs in the caller.
-func runJobs(nJobs, workers int, newWorker func() func(job int)) {
+// runJobs runs jobs 0…nJobs-1 on workers goroutines: the caller and
+// helpers of team when it has them free, fresh goroutines otherwise. Each
+// worker is set up once by newWorker (for its scratch buffers) and then
+// takes the next job index until none are left. The calling goroutine is one
+// of the workers, so a call starts working at once and a helper that wakes
+// late only takes the jobs that are left; with one worker everything runs in
+// the caller.
+func runJobs(team *Team, nJobs, workers int, newWorker func() func(job int)) {
 	if nJobs <= 0 {
 		return
 	}
@@ -50,6 +56,9 @@ func runJobs(nJobs, workers int, newWorker func() func(job int)) {
 			}
 			do(j)
 		}
+	}
+	if team.run(workers, work) {
+		return
 	}
 	var wg sync.WaitGroup
 	for range workers - 1 {

@@ -12,6 +12,10 @@ import (
 // and safe for concurrent use. Results never depend on it: every buffer is
 // overwritten before it is read.
 type Scratch struct {
+	// Team, when set (before the Scratch's first use), lends its helpers
+	// to the parallel regions of the products run through this Scratch.
+	Team *Team
+
 	gemm sync.Pool // of *gemmScratch
 	a    sync.Pool // of *[]float32: packed x, shared by a call's workers
 }
@@ -19,6 +23,14 @@ type Scratch struct {
 // Linear is the package-level Linear, taking its packing buffers from s.
 func (s *Scratch) Linear(y, x []float32, m int, w *Mat, bias []float32, threads int) {
 	linear(s, y, x, m, w, bias, threads)
+}
+
+// team returns s's Team (nil when s is nil).
+func (s *Scratch) team() *Team {
+	if s == nil {
+		return nil
+	}
+	return s.Team
 }
 
 // get returns a packing buffer set from s, or a fresh one when s is nil or

@@ -61,7 +61,7 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 			case PredictorMode:
 				p := b.preds[u]
 				m := b.scoring[u]
-				s.pred = &scorer{p: p, w1: m[0], w2: m[1], rows1: iota32(p.Rank), all: iota32(p.Out)}
+				s.pred = &scorer{p: p, w1: m[0], w2: m[1], rows1: iota32(p.Rank), all: iota32(p.Out), sc: b.Base.Scratch()}
 				if len(h.hidden) < p.Rank {
 					h.hidden = make([]float32, p.Rank)
 				}
@@ -105,7 +105,8 @@ type selector struct {
 type scorer struct {
 	p          *Predictor
 	w1, w2     kernels.Mat
-	rows1, all []int32 // 0..Rank-1 and 0..Out-1
+	rows1, all []int32          // 0..Rank-1 and 0..Out-1
+	sc         *kernels.Scratch // the base model's, whose team the second product shares
 }
 
 // scores writes one token's scores into dst (hidden is rank-sized scratch).
@@ -115,7 +116,7 @@ type scorer struct {
 func (s *scorer) scores(dst, hidden, x []float32, threads int) {
 	kernels.LinearGather(hidden, x, &s.w1, s.p.B1, s.rows1)
 	kernels.ReLU(hidden)
-	kernels.LinearGatherParallel(dst, hidden, &s.w2, s.p.B2, s.all, threads)
+	s.sc.LinearGatherParallel(dst, hidden, &s.w2, s.p.B2, s.all, threads)
 }
 
 // iota32 returns 0, 1, …, n-1.
