@@ -91,19 +91,27 @@ func gemmJob(y, pa []float32, m int, w *Mat, bias []float32, s *gemmScratch, p0,
 			i := ip * mr
 			rows := min(mr, m-i)
 			a := pa[k0*mPad+ip*mr*kc : k0*mPad+(ip+1)*mr*kc]
+			panel := func(jp int) []float32 {
+				if direct {
+					src := (((j0+jp*nr)/PanelRows)*k + k0) * PanelRows
+					return w.Panels.F32[src : src+kc*PanelRows]
+				}
+				return s.pb[jp*nr*kc : (jp+1)*nr*kc]
+			}
 			for jp := 0; jp < colPanels; jp++ {
 				j := j0 + jp*nr
 				cols := min(nr, j1-j)
-				var b []float32
-				if direct {
-					src := ((j/PanelRows)*k + k0) * PanelRows
-					b = w.Panels.F32[src : src+kc*PanelRows]
-				} else {
-					b = s.pb[jp*nr*kc : (jp+1)*nr*kc]
-				}
+				b := panel(jp)
 				var bb []float32
 				if last && bias != nil {
 					bb = bias[j:]
+				}
+				if rows == mr && cols == nr && jp+1 < colPanels && j+2*nr <= j1 {
+					// Two whole tiles side by side: one pass where the
+					// CPU has wider registers, the same bits.
+					gemmMicroFull2(kc, a, b, panel(jp+1), y[i*n+j:], n, first, bb)
+					jp++
+					continue
 				}
 				if rows == mr && cols == nr {
 					gemmMicroFull(kc, a, b, y[i*n+j:], n, first, bb)

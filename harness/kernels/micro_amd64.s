@@ -260,3 +260,106 @@ next32:
 	VMOVUPS Y3, 96(DI)
 	VZEROUPPER
 	RET
+
+// MICROSTEP512 is one k of a 4×32 tile: the two panels' sixteen B values
+// (Z8 from DI, Z9 from BX), the four A values broadcast from SI, eight
+// VMULPS then VADDPS into Z0 … Z7 (row i: Z(2i) columns 0–15, Z(2i+1)
+// columns 16–31), and the three pointers advanced.
+#define MICROSTEP512 \
+	VMOVUPS      0(DI), Z8 \
+	VMOVUPS      0(BX), Z9 \
+	VBROADCASTSS 0(SI), Z10 \
+	VMULPS       Z8, Z10, Z11 \
+	VMULPS       Z9, Z10, Z12 \
+	VBROADCASTSS 4(SI), Z13 \
+	VADDPS       Z11, Z0, Z0 \
+	VADDPS       Z12, Z1, Z1 \
+	VMULPS       Z8, Z13, Z14 \
+	VMULPS       Z9, Z13, Z15 \
+	VBROADCASTSS 8(SI), Z16 \
+	VADDPS       Z14, Z2, Z2 \
+	VADDPS       Z15, Z3, Z3 \
+	VMULPS       Z8, Z16, Z17 \
+	VMULPS       Z9, Z16, Z18 \
+	VBROADCASTSS 12(SI), Z19 \
+	VADDPS       Z17, Z4, Z4 \
+	VADDPS       Z18, Z5, Z5 \
+	VMULPS       Z8, Z19, Z20 \
+	VMULPS       Z9, Z19, Z21 \
+	VADDPS       Z20, Z6, Z6 \
+	VADDPS       Z21, Z7, Z7 \
+	ADDQ         $16, SI \
+	ADDQ         $64, DI \
+	ADDQ         $64, BX
+
+// func gemmMicro2CAVX512(kc int, a, b0, b1, c *float32, ldcBytes int, first bool, bias *float32)
+//
+// Two horizontally adjacent 4×16 tiles of gemmMicroCAVX2 in one pass, in
+// AVX-512: columns 0–15 from the B panel b0, 16–31 from b1, rows c, c+ldc,
+// c+2·ldc, c+3·ldc. Each lane is the same VMULPS then VADDPS chain as the
+// AVX2 kernel and the Go loop (no fused multiply-add), so the bits are the
+// same; 512-bit registers only double the lanes per instruction. bias, when
+// not nil, holds the 32 columns' biases.
+TEXT ·gemmMicro2CAVX512(SB), NOSPLIT, $0-64
+	MOVQ    kc+0(FP), CX
+	MOVQ    a+8(FP), SI
+	MOVQ    b0+16(FP), DI
+	MOVQ    b1+24(FP), BX
+	MOVQ    c+32(FP), DX
+	MOVQ    ldcBytes+40(FP), R8
+	LEAQ    (DX)(R8*1), R9
+	LEAQ    (R9)(R8*1), R10
+	LEAQ    (R10)(R8*1), R11
+	MOVBLZX first+48(FP), AX
+	TESTQ   AX, AX
+	JZ      c2load
+	VPXORD  Z0, Z0, Z0
+	VPXORD  Z1, Z1, Z1
+	VPXORD  Z2, Z2, Z2
+	VPXORD  Z3, Z3, Z3
+	VPXORD  Z4, Z4, Z4
+	VPXORD  Z5, Z5, Z5
+	VPXORD  Z6, Z6, Z6
+	VPXORD  Z7, Z7, Z7
+	JMP     c2loop
+
+c2load:
+	VMOVUPS 0(DX), Z0
+	VMOVUPS 64(DX), Z1
+	VMOVUPS 0(R9), Z2
+	VMOVUPS 64(R9), Z3
+	VMOVUPS 0(R10), Z4
+	VMOVUPS 64(R10), Z5
+	VMOVUPS 0(R11), Z6
+	VMOVUPS 64(R11), Z7
+
+c2loop:
+	MICROSTEP512
+	DECQ    CX
+	JNZ     c2loop
+
+	MOVQ    bias+56(FP), AX
+	TESTQ   AX, AX
+	JZ      c2store
+	VMOVUPS 0(AX), Z8
+	VMOVUPS 64(AX), Z9
+	VADDPS  Z8, Z0, Z0
+	VADDPS  Z9, Z1, Z1
+	VADDPS  Z8, Z2, Z2
+	VADDPS  Z9, Z3, Z3
+	VADDPS  Z8, Z4, Z4
+	VADDPS  Z9, Z5, Z5
+	VADDPS  Z8, Z6, Z6
+	VADDPS  Z9, Z7, Z7
+
+c2store:
+	VMOVUPS Z0, 0(DX)
+	VMOVUPS Z1, 64(DX)
+	VMOVUPS Z2, 0(R9)
+	VMOVUPS Z3, 64(R9)
+	VMOVUPS Z4, 0(R10)
+	VMOVUPS Z5, 64(R10)
+	VMOVUPS Z6, 0(R11)
+	VMOVUPS Z7, 64(R11)
+	VZEROUPPER
+	RET

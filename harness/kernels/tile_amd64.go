@@ -56,6 +56,40 @@ func gemmMicroFull(kc int, a, b, y []float32, ldc int, first bool, bias []float3
 	gemmMicroCAVX2(kc, &a[0], &b[0], &y[0], 4*ldc, first, bp)
 }
 
+// hasAVX512 is fixed at start-up by CPU feature detection (the CPU and the
+// operating system's support for the 512-bit registers).
+var hasAVX512 = cpu.X86.HasAVX512F
+
+// gemmMicroFull2 is gemmMicroFull on two horizontally adjacent whole tiles:
+// columns [0, nr) from the B panel b0 and [nr, 2·nr) from b1 (bias, when
+// not nil, covers all 2·nr). With AVX-512 one assembly pass runs both in
+// 512-bit registers, the same bits as two gemmMicroFull calls.
+func gemmMicroFull2(kc int, a, b0, b1, y []float32, ldc int, first bool, bias []float32) {
+	if !hasAVX512 || kc <= 0 {
+		var bb []float32
+		if bias != nil {
+			bb = bias[nr:]
+		}
+		gemmMicroFull(kc, a, b0, y, ldc, first, bias)
+		gemmMicroFull(kc, a, b1, y[nr:], ldc, first, bb)
+		return
+	}
+	a = a[:kc*mr]
+	b0 = b0[:kc*nr]
+	b1 = b1[:kc*nr]
+	y = y[:(mr-1)*ldc+2*nr]
+	var bp *float32
+	if bias != nil {
+		bp = &bias[:2*nr][0]
+	}
+	gemmMicro2CAVX512(kc, &a[0], &b0[0], &b1[0], &y[0], 4*ldc, first, bp)
+}
+
+// gemmMicro2CAVX512 is gemmMicroFull2 in AVX-512 assembly (micro_amd64.s).
+//
+//go:noescape
+func gemmMicro2CAVX512(kc int, a, b0, b1, c *float32, ldcBytes int, first bool, bias *float32)
+
 // gemmMicroCAVX2 is gemmMicroFull in AVX2 assembly (micro_amd64.s).
 //
 //go:noescape
@@ -82,6 +116,9 @@ func gemmMicroGo(kc int, a, b []float32, c *[mr * nr]float32) {
 
 // MicroKernel names the GEMM micro-kernel in use (benchmarks print it).
 func MicroKernel() string {
+	if hasAVX512 {
+		return "avx512 4x32 (pairs of 4x16 tiles), avx2 4x16"
+	}
 	if hasAVX2 {
 		return "avx2 4x16"
 	}

@@ -47,6 +47,18 @@ func gemmMicroFull(kc int, a, b, y []float32, ldc int, first bool, bias []float3
 	gemmMicroFullGo(kc, a, b, y, ldc, first, bias)
 }
 
+// gemmMicroFull2 is gemmMicroFull on two horizontally adjacent whole
+// tiles: columns [0, nr) from the B panel b0 and [nr, 2·nr) from b1 (bias,
+// when not nil, covers all 2·nr).
+func gemmMicroFull2(kc int, a, b0, b1, y []float32, ldc int, first bool, bias []float32) {
+	var bb []float32
+	if bias != nil {
+		bb = bias[nr:]
+	}
+	gemmMicroFull(kc, a, b0, y, ldc, first, bias)
+	gemmMicroFull(kc, a, b1, y[nr:], ldc, first, bb)
+}
+
 // MicroKernel names the GEMM micro-kernel in use (benchmarks print it).
 func MicroKernel() string { return "go 2x4" }
 
