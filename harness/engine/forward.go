@@ -384,24 +384,15 @@ func (m *Model) attentionHookedBatch(st *state, li int) {
 		}
 		s.appendKV(li, fk, fv, present)
 	}
-	parallelRows(R, m.threads, func(r0, r1 int) {
-		var scores []float32
-		for r := r0; r < r1; r++ {
-			a := st.a[r*qd : (r+1)*qd]
-			s := st.sessions[st.rows[r].seq]
-			if kept[r] == nil {
-				for h := 0; h < c.Heads; h++ {
-					scores = m.attendHead(a[h*hd:(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd], s, li, h, st.rows[r].pos+1, scores)
-				}
-				continue
-			}
-			clear(a)
-			for _, hh := range kept[r] {
-				h := int(hh)
-				scores = m.attendHead(a[h*hd:(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd], s, li, h, st.rows[r].pos+1, scores)
-			}
+	// Dropped heads contribute zero; the kept ones run as in a dense
+	// prefill (blocked where rows form a run), which gives the bits of
+	// attending head by head.
+	for r := 0; r < R; r++ {
+		if kept[r] != nil {
+			clear(st.a[r*qd : (r+1)*qd])
 		}
-	})
+	}
+	m.attendRowsKept(st, li, kept)
 	out := st.h
 	m.scratch.Linear(out, st.a, R, L.o, L.oB, m.threads)
 	kernels.Add(st.x, st.x, out)
@@ -593,11 +584,33 @@ func grow(b []float32, n int) []float32 {
 // attendRows computes every row's attention output (all heads) into st.a,
 // in parallel over jobs: one job per row outside runs, one per block and
 // head inside them.
-func (m *Model) attendRows(st *state, li int) {
+func (m *Model) attendRows(st *state, li int) { m.attendRowsKept(st, li, nil) }
+
+// attendRowsKept is attendRows for only the heads each row keeps: kept[r]
+// lists row r's heads ascending, nil meaning all (kept itself nil: all heads
+// of every row). Outputs of heads a row drops are not written. A block job
+// runs for a head only when some row of the block keeps it.
+func (m *Model) attendRowsKept(st *state, li int, kept [][]int32) {
 	c := m.Config
 	R, hd := len(st.rows), c.HeadDim
 	qd := c.Heads * hd
-	if R == 1 { // a decode step: no jobs to share out
+	var keeps func(r, h int) bool // nil: every row keeps every head
+	if kept != nil {
+		mask := make([]bool, R*c.Heads)
+		for r, ks := range kept {
+			if ks == nil {
+				for h := range c.Heads {
+					mask[r*c.Heads+h] = true
+				}
+				continue
+			}
+			for _, h := range ks {
+				mask[r*c.Heads+int(h)] = true
+			}
+		}
+		keeps = func(r, h int) bool { return mask[r*c.Heads+h] }
+	}
+	if R == 1 && keeps == nil { // a decode step: no jobs to share out
 		var scores []float32
 		for h := 0; h < c.Heads; h++ {
 			scores = m.attendHead(st.a[h*hd:(h+1)*hd], st.q[h*hd:(h+1)*hd], st.sessions[st.rows[0].seq], li, h, st.rows[0].pos+1, scores)
@@ -617,8 +630,12 @@ func (m *Model) attendRows(st *state, li int) {
 			}
 		} else {
 			for b := r; b < e; b += attendBlock {
+				be := min(b+attendBlock, e)
 				for h := 0; h < c.Heads; h++ {
-					jobs = append(jobs, job{b, min(b+attendBlock, e), h})
+					if keeps != nil && !anyKeeps(keeps, b, be, h) {
+						continue
+					}
+					jobs = append(jobs, job{b, be, h})
 				}
 			}
 		}
@@ -638,21 +655,35 @@ func (m *Model) attendRows(st *state, li int) {
 			if jb.h < 0 {
 				r := jb.r0
 				for h := 0; h < c.Heads; h++ {
+					if keeps != nil && !keeps(r, h) {
+						continue
+					}
 					scores = m.attendHead(st.a[r*qd+h*hd:r*qd+(h+1)*hd], st.q[r*qd+h*hd:r*qd+(h+1)*hd],
 						s, li, h, st.rows[r].pos+1, scores)
 				}
 				continue
 			}
-			m.attendBlockHead(st, li, jb.r0, jb.r1, jb.h, s, as, scale)
+			m.attendBlockHead(st, li, jb.r0, jb.r1, jb.h, s, as, scale, keeps)
 		}
 	})
+}
+
+// anyKeeps reports whether some row of [r0, r1) keeps head h.
+func anyKeeps(keeps func(r, h int) bool, r0, r1, h int) bool {
+	for r := r0; r < r1; r++ {
+		if keeps(r, h) {
+			return true
+		}
+	}
+	return false
 }
 
 // attendBlockHead computes head h's attention for rows [r0, r1), one run
 // of session s at consecutive positions: the block's queries times the first
 // n cached keys (n the last row's position + 1) as one product, then each
-// row's own prefix of scores through attendScores.
-func (m *Model) attendBlockHead(st *state, li, r0, r1, h int, s *Session, as *attnScratch, scale float32) {
+// row's own prefix of scores through attendScores (only the rows that keep
+// h, when keeps is not nil).
+func (m *Model) attendBlockHead(st *state, li, r0, r1, h int, s *Session, as *attnScratch, scale float32, keeps func(r, h int) bool) {
 	c := m.Config
 	hd, qd, kvd := c.HeadDim, c.Heads*c.HeadDim, c.KVHeads*c.HeadDim
 	g := h / (c.Heads / c.KVHeads)
@@ -670,6 +701,9 @@ func (m *Model) attendBlockHead(st *state, li, r0, r1, h int, s *Session, as *at
 	m.scratch.Linear(as.s, as.q, rows, keys, nil, 1)
 	for i := 0; i < rows; i++ {
 		r := r0 + i
+		if keeps != nil && !keeps(r, h) {
+			continue
+		}
 		np := st.rows[r].pos + 1
 		m.attendScores(st.a[r*qd+h*hd:r*qd+(h+1)*hd], as.s[i*n:i*n+np], s, li, g, scale)
 	}
@@ -888,28 +922,6 @@ func (m *Model) token(st *state, li, r int) *Token {
 		t.PrevLayerInput = st.prevIn[r*d : (r+1)*d]
 	}
 	return t
-}
-
-// parallelRows splits [0,n) into contiguous chunks over up to threads goroutines.
-func parallelRows(n, threads int, fn func(r0, r1 int)) {
-	if threads > n {
-		threads = n
-	}
-	if threads <= 1 {
-		fn(0, n)
-		return
-	}
-	var wg sync.WaitGroup
-	chunk := (n + threads - 1) / threads
-	for r0 := 0; r0 < n; r0 += chunk {
-		r1 := min(r0+chunk, n)
-		wg.Add(1)
-		go func() {
-			defer wg.Done()
-			fn(r0, r1)
-		}()
-	}
-	wg.Wait()
 }
 
 // parallelJobs runs n jobs on up to threads goroutines (the caller is one
