@@ -64,8 +64,6 @@ func TopK(dst []int32, scores []float32, k int) []int32 {
 	return topKKeys(dst, make([]uint64, 2*len(scores)), scores, k)
 }
 
-// mats views the predictor's two layers as weight matrices: W1 Rank×In and
-// W2 Out×Rank.
 // halfExact returns v's binary16 patterns when every value is exactly a
 // binary16 number (so the half copy widens back to the same bits), and
 // false otherwise.
@@ -117,6 +115,8 @@ func (p *Predictor) scoringMats() [2]kernels.Mat {
 	return out
 }
 
+// mats views the predictor's two layers as weight matrices: W1 Rank×In and
+// W2 Out×Rank.
 func (p *Predictor) mats() (w1, w2 *kernels.Mat) {
 	return &kernels.Mat{DType: kernels.F32, Out: p.Rank, In: p.In, F32: p.W1},
 		&kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, F32: p.W2}
