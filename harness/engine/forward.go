@@ -839,24 +839,43 @@ func (m *Model) mlp(st *state, li int) {
 		kernels.Add(st.x, st.x, out)
 		return
 	}
-	y := st.tmp[:d]
-	for r := 0; r < R; r++ {
-		h := st.h[r*d : (r+1)*d]
-		u := st.u[r*f : (r+1)*f]
-		if idx[r] == nil {
-			m.mlpHidden(u, h, L, nil)
-			m.scratch.Linear(y, u, 1, L.down, L.downB, m.threads)
-		} else {
-			m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
-			down := L.down
-			if L.downT != nil {
-				down = L.downT
-			}
-			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], down, L.downB, idx[r], m.threads)
+	if R == 1 || m.threads == 1 {
+		for r := 0; r < R; r++ {
+			m.mlpRow(st, L, idx, r, st.tmp[:d])
 		}
-		xr := st.x[r*d : (r+1)*d]
-		kernels.Add(xr, xr, y)
+		return
 	}
+	// Several rows: whole rows per worker, each on one thread, instead of
+	// every row's gathers split over the threads (the same bits; no
+	// hand-off per row).
+	one := m.WithThreads(1)
+	parallelJobs(R, m.threads, func(next func() (int, bool)) {
+		y := make([]float32, d)
+		for r, ok := next(); ok; r, ok = next() {
+			one.mlpRow(st, L, idx, r, y)
+		}
+	})
+}
+
+// mlpRow runs row r's MLP on the neurons idx[r] (all when nil) and adds it
+// to the row's residual; y is d-sized scratch.
+func (m *Model) mlpRow(st *state, L *layer, idx [][]int32, r int, y []float32) {
+	d, f := m.Config.Hidden, m.Config.FFN
+	h := st.h[r*d : (r+1)*d]
+	u := st.u[r*f : (r+1)*f]
+	if idx[r] == nil {
+		m.mlpHidden(u, h, L, nil)
+		m.scratch.Linear(y, u, 1, L.down, L.downB, m.threads)
+	} else {
+		m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
+		down := L.down
+		if L.downT != nil {
+			down = L.downT
+		}
+		m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], down, L.downB, idx[r], m.threads)
+	}
+	xr := st.x[r*d : (r+1)*d]
+	kernels.Add(xr, xr, y)
 }
 
 // zeroExcept zeroes u outside the ascending indices keep.
