@@ -87,17 +87,18 @@ func gemmJob(y, pa []float32, m int, w *Mat, bias []float32, s *gemmScratch, p0,
 		if !direct {
 			packB(s.pb, s.conv, w, k0, kc, j0, j1)
 		}
+		// panel is column panel jp's B block at this k block.
+		panel := func(jp int) []float32 {
+			if direct {
+				src := (((j0+jp*nr)/PanelRows)*k + k0) * PanelRows
+				return w.Panels.F32[src : src+kc*PanelRows]
+			}
+			return s.pb[jp*nr*kc : (jp+1)*nr*kc]
+		}
 		for ip := p0; ip < p1; ip++ {
 			i := ip * mr
 			rows := min(mr, m-i)
 			a := pa[k0*mPad+ip*mr*kc : k0*mPad+(ip+1)*mr*kc]
-			panel := func(jp int) []float32 {
-				if direct {
-					src := (((j0+jp*nr)/PanelRows)*k + k0) * PanelRows
-					return w.Panels.F32[src : src+kc*PanelRows]
-				}
-				return s.pb[jp*nr*kc : (jp+1)*nr*kc]
-			}
 			for jp := 0; jp < colPanels; jp++ {
 				j := j0 + jp*nr
 				cols := min(nr, j1-j)

@@ -39,11 +39,7 @@ type helper struct {
 
 // NewTeam returns a Team of n helpers (none when n < 1), started on first use.
 func NewTeam(n int) *Team {
-	t := &Team{}
-	for range max(n, 0) {
-		t.helpers = append(t.helpers, nil)
-	}
-	return t
+	return &Team{helpers: make([]*helper, max(n, 0))}
 }
 
 // Close stops the helpers; later regions run on fresh goroutines. It is

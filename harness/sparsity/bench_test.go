@@ -130,8 +130,7 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	// the panel copies Build packed, top-k into reused scratch.
 	u := Unit{0, MLP}
 	p := bld.Predictor(u)
-	ms := bld.scoring[u]
-	sc := &scorer{p: p, w1: ms[0], w2: ms[1], rows1: iota32(p.Rank), all: iota32(p.Out)}
+	sc := bld.scorer(u)
 	scores, ph := make([]float32, cfg.FFN), make([]float32, p.Rank)
 	order := make([]uint64, 2*cfg.FFN)
 	k := bld.Rule(u).K

@@ -370,7 +370,7 @@ func TestHalfPredictorsRoundTrip(t *testing.T) {
 		}
 		want, hidden := make([]float32, 64), make([]float32, 4)
 		got.Scores(want, hidden, x)
-		sc := &scorer{p: got, w1: sm[0], w2: sm[1], rows1: iota32(4), all: iota32(64)}
+		sc := b.scorer(u)
 		mine := make([]float32, 64)
 		sc.scores(mine, hidden, x, 2)
 		require.Equal(t, want, mine, "%s: scores from the scoring matrices", u)

@@ -20,8 +20,8 @@ type HookOptions struct {
 	// Recall also measures, per token, the recall of the kept set against
 	// the oracle set of the same size; it costs a Token.Dense call per unit.
 	Recall bool
-	// Threads, when > 0, bounds the kernel workers of predictor
-	// scoring (0: the base model's thread count). Results do not depend on it.
+	// Threads, when > 0, bounds the kernel workers of predictor scoring
+	// (0: the base model's thread count). Results do not depend on it.
 	Threads int
 }
 
@@ -59,11 +59,9 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 					s.keep[i] = int32(v)
 				}
 			case PredictorMode:
-				p := b.preds[u]
-				m := b.scoring[u]
-				s.pred = &scorer{p: p, w1: m[0], w2: m[1], rows1: iota32(p.Rank), all: iota32(p.Out), sc: b.Base.Scratch()}
-				if len(h.hidden) < p.Rank {
-					h.hidden = make([]float32, p.Rank)
+				s.pred = b.scorer(u)
+				if len(h.hidden) < s.pred.p.Rank {
+					h.hidden = make([]float32, s.pred.p.Rank)
 				}
 			}
 		}
@@ -107,6 +105,13 @@ type scorer struct {
 	w1, w2     kernels.Mat
 	rows1, all []int32          // 0..Rank-1 and 0..Out-1
 	sc         *kernels.Scratch // the base model's, whose team the second product shares
+}
+
+// scorer returns unit u's predictor bound to its scoring matrices and to
+// the base model's Scratch.
+func (b *Build) scorer(u Unit) *scorer {
+	p, m := b.preds[u], b.scoring[u]
+	return &scorer{p: p, w1: m[0], w2: m[1], rows1: iota32(p.Rank), all: iota32(p.Out), sc: b.Base.Scratch()}
 }
 
 // scores writes one token's scores into dst (hidden is rank-sized scratch).
