@@ -15,12 +15,11 @@ func rankKey(v float32, i int) uint64 {
 	case v == 0:
 		hi = 0x80000000 // -0 and +0 tie
 	default:
+		// Negative values complement all their bits, the others set the
+		// sign bit: without a branch on the sign, which predictor scores
+		// take at random.
 		b := math.Float32bits(v)
-		if b&0x80000000 != 0 {
-			hi = ^b
-		} else {
-			hi = b | 0x80000000
-		}
+		hi = b ^ (uint32(int32(b)>>31) | 0x80000000)
 	}
 	return uint64(hi)<<32 | uint64(^uint32(i))
 }
@@ -28,9 +27,8 @@ func rankKey(v float32, i int) uint64 {
 // topKKeys appends to dst[:0], ascending, the indices of the k values that
 // rank first (ranksBefore's order: larger first, ties to the lower index,
 // NaN last). scratch must hold at least 2·len(vals) keys. It finds the k-th
-// key by quickselect on the keys themselves (no comparisons through a
-// closure), then collects every index whose key is at least that one in a
-// single ascending pass, so no sort is needed.
+// key (kthKey), then collects every index whose key is at least that one in
+// a single ascending pass, so no sort is needed.
 func topKKeys(dst []int32, scratch []uint64, vals []float32, k int) []int32 {
 	n := len(vals)
 	dst = dst[:0]
@@ -47,14 +45,69 @@ func topKKeys(dst []int32, scratch []uint64, vals []float32, k int) []int32 {
 		}
 		return dst
 	}
-	copy(work, keys)
-	t := kthLargest(work, k)
+	t := kthKey(keys, work, k)
+	if cap(dst) < n {
+		dst = make([]int32, 0, n)
+	}
+	// Branch-free collection: every index is written, and the count moves
+	// past it only when it is kept (a kept unit's place is taken at random,
+	// so a branch would miss about once per kept unit).
+	all := dst[:n]
+	c := 0
 	for i, key := range keys {
-		if key >= t {
-			dst = append(dst, int32(i))
+		all[c] = int32(i)
+		c += keep(key >= t)
+	}
+	return all[:c]
+}
+
+// keep is 1 for true and 0 for false (the compiler makes it a flag move,
+// not a branch).
+func keep(b bool) int {
+	if b {
+		return 1
+	}
+	return 0
+}
+
+// Sampling of kthKey: one key in sampleStride is a sample, used when there
+// are at least sampleMin keys.
+const (
+	sampleStride = 8
+	sampleMin    = 512
+)
+
+// kthKey returns the k-th largest of the distinct keys (1 ≤ k < len(keys)),
+// using work (len(keys) long) and leaving keys as they are. On large inputs
+// it first picks, from every sampleStride-th key, a threshold that about
+// k·1.5 keys pass (with a margin of three standard deviations and more),
+// copies those keys without branching and selects among them; should
+// fewer than k pass, it selects among all the keys. Either way the answer
+// is exact: the keys at or above any threshold are the largest ones, so
+// when at least k pass, the k-th largest is among them.
+func kthKey(keys, work []uint64, k int) uint64 {
+	n := len(keys)
+	if n >= sampleMin && 2*k <= n {
+		m := n / sampleStride
+		ks := k / sampleStride
+		r := ks + ks/2 + 3*int(math.Sqrt(float64(ks))) + 4
+		if r <= m {
+			for i := range m {
+				work[i] = keys[i*sampleStride]
+			}
+			t0 := kthLargest(work[:m], r)
+			c := 0
+			for _, key := range keys {
+				work[c] = key
+				c += keep(key >= t0)
+			}
+			if c >= k {
+				return kthLargest(work[:c], k)
+			}
 		}
 	}
-	return dst
+	copy(work, keys)
+	return kthLargest(work, k)
 }
 
 // kthLargest returns the k-th largest of the distinct keys (1 ≤ k ≤ len),
