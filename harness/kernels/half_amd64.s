@@ -25,6 +25,31 @@ done:
 	VZEROUPPER
 	RET
 
+// func bf16ToF32AVX2(dst *float32, src *uint16, n int)
+//
+// dst[i] = float32 with the bits src[i] << 16 for i < n, n a multiple of 8:
+// the reference is bf16ToF32Go (exact for every pattern, NaN payloads
+// included: a bfloat16 is the top half of a float32).
+TEXT ·bf16ToF32AVX2(SB), NOSPLIT, $0-24
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ n+16(FP), CX
+	SHRQ $3, CX
+	JZ   bf16done
+
+bf16loop:
+	VPMOVZXWD (SI), Y0
+	VPSLLD    $16, Y0, Y0
+	VMOVDQU   Y0, (DI)
+	ADDQ      $16, SI
+	ADDQ      $32, DI
+	DECQ      CX
+	JNZ       bf16loop
+
+bf16done:
+	VZEROUPPER
+	RET
+
 // func axpyF16AVX2(alpha float32, x *uint16, y *float32, n int)
 //
 // y[j] += alpha·float32(binary16 x[j]) for j < n (a multiple of 8): each

@@ -2,6 +2,7 @@ package kernels_test
 
 import (
 	"math"
+	"slices"
 	"sort"
 	"testing"
 
@@ -329,5 +330,74 @@ func TestF32ToBF16(t *testing.T) {
 		if want := refToBF16(f); dst[i] != want {
 			t.Fatalf("F32ToBF16(%#08x) = %#04x, reference %#04x", math.Float32bits(f), dst[i], want)
 		}
+	}
+}
+
+// Both slice conversions give, at every length from 0 to 40 (whole blocks
+// of eight for the assembly paths, and tails), each element's own
+// conversion, write nothing past the end (guard values), and leave their
+// input as it was.
+func TestHalfSliceConversionsLengthsAndGuards(t *testing.T) {
+	const guard = float32(-12345.5)
+	for _, c := range []struct {
+		name  string
+		slice func(dst []float32, src []uint16)
+		one   func(uint16) float32
+	}{
+		{"F16ToF32", kernels.F16ToF32, kernels.F16Value},
+		{"BF16ToF32", kernels.BF16ToF32, kernels.BF16Value},
+	} {
+		for n := 0; n <= 40; n++ {
+			src := make([]uint16, n)
+			for i := range src {
+				// Finite patterns of both signs, subnormals included (the
+				// exhaustive tests cover NaN).
+				src[i] = uint16((i*7919 + n*104729) % 0x7c00)
+				if i%3 == 1 {
+					src[i] |= 0x8000
+				}
+			}
+			orig := append([]uint16(nil), src...)
+			buf := make([]float32, n+8)
+			for i := range buf {
+				buf[i] = guard
+			}
+			c.slice(buf[4:4+n], src)
+			for i := 0; i < 4; i++ {
+				if buf[i] != guard || buf[4+n+i] != guard {
+					t.Fatalf("%s n=%d: a guard value was overwritten", c.name, n)
+				}
+			}
+			for i, h := range src {
+				if got, want := math.Float32bits(buf[4+i]), math.Float32bits(c.one(h)); got != want {
+					t.Fatalf("%s n=%d i=%d (%#04x): %#x, the element's own conversion %#x", c.name, n, i, h, got, want)
+				}
+			}
+			if !slices.Equal(src, orig) {
+				t.Fatalf("%s n=%d: the input was modified", c.name, n)
+			}
+		}
+	}
+}
+
+// BenchmarkHalfToF32 converts one 3072×768 weight matrix (the OPT-125M MLP's
+// fc1) from each half-precision format; compare with -tags noasm for the
+// pure-Go twins.
+func BenchmarkHalfToF32(b *testing.B) {
+	src := make([]uint16, 3072*768)
+	for i := range src {
+		src[i] = uint16(i*40503) & 0x7bff
+	}
+	dst := make([]float32, len(src))
+	for _, c := range []struct {
+		name string
+		f    func(dst []float32, src []uint16)
+	}{{"f16", kernels.F16ToF32}, {"bf16", kernels.BF16ToF32}} {
+		b.Run(c.name, func(b *testing.B) {
+			b.SetBytes(int64(2 * len(src)))
+			for range b.N {
+				c.f(dst, src)
+			}
+		})
 	}
 }

@@ -68,8 +68,9 @@ func f16ToF32Go(dst []float32, src []uint16) {
 	}
 }
 
-// bf16ToF32Slice converts bfloat16 bit patterns; len(dst) == len(src).
-func bf16ToF32Slice(dst []float32, src []uint16) {
+// bf16ToF32Go converts bfloat16 bit patterns; len(dst) == len(src). It is
+// the portable body of bf16ToF32Slice.
+func bf16ToF32Go(dst []float32, src []uint16) {
 	dst = dst[:len(src)]
 	for i, h := range src {
 		dst[i] = math.Float32frombits(uint32(h) << 16)

@@ -142,6 +142,26 @@ func f16ToF32Slice(dst []float32, src []uint16) {
 	f16ToF32Go(dst, src)
 }
 
+// bf16ToF32Slice converts bfloat16 bit patterns; len(dst) == len(src).
+// With AVX2, blocks of eight widen and shift in registers (VPMOVZXWD,
+// VPSLLD): the Go twin's bits, NaN payloads included.
+func bf16ToF32Slice(dst []float32, src []uint16) {
+	n := len(src)
+	dst = dst[:n]
+	if hasAVX2 && n >= 8 {
+		blocks := n &^ 7
+		bf16ToF32AVX2(&dst[0], &src[0], blocks)
+		dst, src = dst[blocks:], src[blocks:]
+	}
+	bf16ToF32Go(dst, src)
+}
+
+// bf16ToF32AVX2 converts n (a multiple of 8) bfloat16 values at src into
+// dst (half_amd64.s).
+//
+//go:noescape
+func bf16ToF32AVX2(dst *float32, src *uint16, n int)
+
 // f16ToF32F16C converts n (a multiple of 8) halves at src into dst (half_amd64.s).
 //
 //go:noescape

@@ -65,6 +65,9 @@ func MicroKernel() string { return "go 2x4" }
 // f16ToF32Slice converts binary16 bit patterns; len(dst) == len(src).
 func f16ToF32Slice(dst []float32, src []uint16) { f16ToF32Go(dst, src) }
 
+// bf16ToF32Slice converts bfloat16 bit patterns; len(dst) == len(src).
+func bf16ToF32Slice(dst []float32, src []uint16) { bf16ToF32Go(dst, src) }
+
 // axpyAcc does y[j] += alpha·x[j] (product rounded, then added) for
 // j < len(y); len(x) >= len(y).
 func axpyAcc(alpha float32, x, y []float32) { axpyGo(alpha, x, y) }
