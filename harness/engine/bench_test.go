@@ -114,6 +114,7 @@ func decodeOnce(b *testing.B, m *Model) time.Duration {
 	V := m.Config.VocabSize
 	logits := make([]float32, V)
 	s := m.NewSession()
+	defer s.Close() // as Generate does: the next call starts in this cache's memory
 	h, err := m.Forward([]*Session{s}, [][]int{benchTokens(16, V)}, nil)
 	if err != nil {
 		b.Fatal(err)

@@ -55,6 +55,7 @@ func (m *Model) Generate(prompt []int, opts GenerateOptions) (*Generation, error
 		panic("engine: stop sequences need TokenBytes")
 	}
 	s := m.NewSession()
+	defer s.Close()
 	V := m.Config.VocabSize
 	logits := make([]float32, V)
 	g := &Generation{Reason: StopMaxTokens}

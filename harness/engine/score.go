@@ -69,6 +69,7 @@ func (m *Model) LogProbs(tokens []int, hook Hook) ([]float64, error) {
 // result is bit-identical to running its sequence alone.
 func (m *Model) BatchLogProbs(seqs [][]int, hook Hook) ([][]float64, error) {
 	sessions := make([]*Session, len(seqs))
+	defer closeAll(sessions)
 	var targets []int
 	for b, s := range seqs {
 		sessions[b] = m.NewSession()
@@ -120,6 +121,7 @@ func (m *Model) Continuations(context []int, conts [][]int, hook Hook) ([]Contin
 		return nil, fmt.Errorf("continuation scoring needs a non-empty context")
 	}
 	base := m.NewSession()
+	defer base.Close()
 	// The context's last row predicts each continuation's first token.
 	hidden, err := m.Forward([]*Session{base}, [][]int{context}, hook)
 	if err != nil {
@@ -128,6 +130,7 @@ func (m *Model) Continuations(context []int, conts [][]int, hook Hook) ([]Contin
 	d := m.Config.Hidden
 	last := hidden[(len(context)-1)*d:]
 	sessions := make([]*Session, len(conts))
+	defer closeAll(sessions)
 	var targets []int
 	var rows []float32
 	for b, c := range conts {
@@ -180,13 +183,15 @@ func (m *Model) Continuations(context []int, conts [][]int, hook Hook) ([]Contin
 func (s *Session) Clone() *Session { return s.cloneWithRoom(0) }
 
 // cloneWithRoom is Clone with capacity for rows more positions in every
-// layer's cache, so that appending them copies nothing again.
+// layer's cache, so that appending them copies nothing again. The copy
+// lives in a closed session's memory when the model holds one.
 func (s *Session) cloneWithRoom(rows int) *Session {
-	c := &Session{m: s.m, n: s.n, k: make([][]float32, len(s.k)), v: make([][]float32, len(s.v)), present: make([][]bool, len(s.k))}
+	c := s.m.NewSession()
+	c.n = s.n
 	extra := rows * s.m.Config.KVHeads * s.m.Config.HeadDim
 	for i := range s.k {
-		c.k[i] = append(make([]float32, 0, len(s.k[i])+extra), s.k[i]...)
-		c.v[i] = append(make([]float32, 0, len(s.v[i])+extra), s.v[i]...)
+		c.k[i] = append(withRoom(c.k[i], len(s.k[i])+extra, 0), s.k[i]...)
+		c.v[i] = append(withRoom(c.v[i], len(s.v[i])+extra, 0), s.v[i]...)
 		if s.present[i] != nil {
 			c.present[i] = append([]bool(nil), s.present[i]...)
 		}
@@ -241,6 +246,7 @@ func (m *Model) SlidingLogProbs(tokens []int, opts SlidingOptions) (lp []float64
 		seq := tokens[start:end]
 		s := m.NewSession()
 		hidden, err := m.Forward([]*Session{s}, [][]int{seq[:len(seq)-1]}, hook)
+		s.Close() // the window's cache is not needed past its forward pass
 		if err != nil {
 			return nil, nil, fmt.Errorf("window [%d,%d): %w", start, end, err)
 		}
@@ -269,4 +275,13 @@ func (m *Model) SlidingLogProbs(tokens []int, opts SlidingOptions) (lp []float64
 		}
 	}
 	return lp, windows, nil
+}
+
+// closeAll closes every session of ss that was made.
+func closeAll(ss []*Session) {
+	for _, s := range ss {
+		if s != nil {
+			s.Close()
+		}
+	}
 }

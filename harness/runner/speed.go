@@ -51,6 +51,7 @@ func (rc *runCtx) timeOne(t *Target, prompt []int, n int) (prefill, decode float
 	m := t.Model
 	hook := t.hook(nil, false)
 	s := m.NewSession()
+	defer s.Close()
 	logits := make([]float32, m.Config.VocabSize)
 	t0 := rc.opts.Now()
 	hidden, err := m.Forward([]*engine.Session{s}, [][]int{prompt}, hook)

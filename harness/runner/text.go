@@ -71,6 +71,7 @@ func (rc *runCtx) perplexity(pp *prepared, pr *results.Probe) error {
 func rowLogits(m *engine.Model, hook engine.Hook, seq []int) ([]float32, error) {
 	s := m.NewSession()
 	hidden, err := m.Forward([]*engine.Session{s}, [][]int{seq[:len(seq)-1]}, hook)
+	s.Close() // only the logits of the rows are needed
 	if err != nil {
 		return nil, err
 	}
@@ -210,7 +211,9 @@ func (rc *runCtx) sparsity(pp *prepared, pr *results.Probe) error {
 	prog := rc.progress(pp.probe.Name)
 	for wi, w := range pp.windows {
 		s := c.Model.NewSession()
-		if _, err := c.Model.Forward([]*engine.Session{s}, [][]int{pp.tokens[w.start : w.end-1]}, hook); err != nil {
+		_, err := c.Model.Forward([]*engine.Session{s}, [][]int{pp.tokens[w.start : w.end-1]}, hook)
+		s.Close()
+		if err != nil {
 			return fmt.Errorf("window %s: %w", windowID(wi), err)
 		}
 		prog(wi+1, len(pp.windows))

@@ -180,6 +180,7 @@ func BenchmarkDecodeStep(b *testing.B) {
 					}
 					m.Logits(logits, h, 1)
 				}
+				s.Close()
 			}
 			b.ReportMetric(float64(8*b.N)/b.Elapsed().Seconds(), "tok/s")
 		})
