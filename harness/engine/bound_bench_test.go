@@ -7,6 +7,7 @@ import (
 	"sync"
 	"testing"
 	"time"
+	"unsafe"
 
 	"github.com/stretchr/testify/require"
 
@@ -83,6 +84,45 @@ func copyBandwidth(dst, src []float32) float64 {
 	return 2 * 4 * float64(len(src)) / time.Since(t0).Seconds()
 }
 
+// readBandwidth returns the bytes per second of a 2-goroutine read-only
+// pass over src (64-bit words summed into eight independent accumulators,
+// so the adds never hold the loads back): the access pattern of a decode
+// step, which only reads its weights. It is a diagnostic printed beside the
+// copy bandwidth, which stays the bound's reference.
+func readBandwidth(src []float32) float64 {
+	words := unsafe.Slice((*uint64)(unsafe.Pointer(&src[0])), len(src)/2)
+	half := len(words) / 2
+	var wg sync.WaitGroup
+	sums := make([]uint64, 2*8) // one cache line per goroutine
+	t0 := time.Now()
+	for g, r := range [][2]int{{0, half}, {half, len(words)}} {
+		wg.Add(1)
+		go func() {
+			defer wg.Done()
+			w := words[r[0]:r[1]]
+			var a [8]uint64
+			for i := 0; i+8 <= len(w); i += 8 {
+				c := w[i : i+8 : i+8]
+				a[0] += c[0]
+				a[1] += c[1]
+				a[2] += c[2]
+				a[3] += c[3]
+				a[4] += c[4]
+				a[5] += c[5]
+				a[6] += c[6]
+				a[7] += c[7]
+			}
+			sums[g*8] = a[0] + a[1] + a[2] + a[3] + a[4] + a[5] + a[6] + a[7]
+		}()
+	}
+	wg.Wait()
+	took := time.Since(t0)
+	if sums[0] == 1 && sums[8] == 1 { // keep the sums live
+		panic("unreachable")
+	}
+	return 8 * float64(len(words)) / took.Seconds()
+}
+
 // copyBufferBytes is the copy loop's buffer size: 256 MiB, eight times the
 // 32 MiB last-level cache of the machines this project benchmarks on, so the
 // copy runs from memory.
@@ -96,7 +136,11 @@ const copyBufferBytes = 256 << 20
 // (copy-GB/s, read+write, 10⁹ bytes), the weight bytes a decode step reads
 // (MB/token, counted by decodeBytesPerToken), the bound they give
 // (bound-tok/s = bandwidth ÷ bytes per token) and ratio = tok/s ÷ bound-tok/s.
-// Run it with -benchtime Nx.
+// As a diagnostic it also times a read-only pass over the same buffer after
+// each copy pair (read-GB/s, and read-ratio: tok/s over the bound that read
+// bandwidth would give), since a decode step only reads: on some machines
+// a copy moves more bytes a second than a read-only stream of two threads
+// can. Run it with -benchtime Nx.
 func BenchmarkEngineDecodeBound(b *testing.B) {
 	m, err := Load(benchDir(b), Options{Threads: 2})
 	if err != nil {
@@ -109,11 +153,12 @@ func BenchmarkEngineDecodeBound(b *testing.B) {
 	}
 	copyBandwidth(dst, src) // fault the pages in
 	decodeOnce(b, m)        // and the weights
-	var toks, bws []float64
+	var toks, bws, rds []float64
 	b.ResetTimer()
 	for range b.N {
 		toks = append(toks, decodeSteps/decodeOnce(b, m).Seconds())
 		bws = append(bws, copyBandwidth(dst, src), copyBandwidth(dst, src))
+		rds = append(rds, readBandwidth(src))
 	}
 	b.StopTimer()
 	perToken := float64(decodeBytesPerToken(m))
@@ -124,6 +169,9 @@ func BenchmarkEngineDecodeBound(b *testing.B) {
 	b.ReportMetric(perToken/1e6, "MB/token")
 	b.ReportMetric(bound, "bound-tok/s")
 	b.ReportMetric(tok/bound, "ratio")
+	rd := medianOf(rds)
+	b.ReportMetric(rd/1e9, "read-GB/s")
+	b.ReportMetric(tok/(rd/perToken), "read-ratio")
 }
 
 func medianOf(v []float64) float64 {
