@@ -51,6 +51,28 @@ func BenchmarkGEMVRows(b *testing.B) {
 	}
 }
 
+// BenchmarkGEMVPanels times the m == 1 path the engine runs on its weights
+// (the k-major panel copy) in one goroutine, on the same shapes and dtypes.
+// The 768-wide matrices stay in cache here, so it measures the kernel's
+// arithmetic; a decode step streams them from memory.
+func BenchmarkGEMVPanels(b *testing.B) {
+	for _, sh := range gemvShapes {
+		for _, dt := range allDTypes {
+			b.Run(fmt.Sprintf("%dto%d_%v", sh.in, sh.out, dt), func(b *testing.B) {
+				w := benchMat(dt, sh.out, sh.in, false)
+				w.Panels = kernels.PackPanels(w)
+				x := randVec(newRand(5), sh.in)
+				y := make([]float32, sh.out)
+				b.ResetTimer()
+				for range b.N {
+					kernels.Linear(y, x, 1, w, nil, 1)
+				}
+				reportWeightGBs(b, weightBytes(dt, sh.out, sh.in))
+			})
+		}
+	}
+}
+
 // BenchmarkGEMVGather times LinearGather over a 3072×768 up-projection with
 // every tenth row kept (307 rows, the sparse MLP's typical density).
 func BenchmarkGEMVGather(b *testing.B) {

@@ -6,7 +6,8 @@ package kernels
 // P = panels[q] of w (len(x) == w.In), k ascending, each product rounded to
 // float32 before it is added: panelDot4Go's bits. With AVX2 (and F16C for
 // binary16) the loop runs in assembly, sixteen outputs per panel in two
-// vectors, eight independent accumulators in all.
+// vectors, eight independent accumulators in all; where the CPU has
+// AVX-512, sixteen outputs per panel in one 512-bit vector.
 func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int) {
 	n := len(x)
 	if n == 0 || !gemvAsm(w.DType) {
@@ -20,6 +21,10 @@ func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels
 		for q, pn := range panels {
 			p[q] = &w.Panels.F32[pn*span : (pn+1)*span][0]
 		}
+		if hasAVX512 {
+			panelDot4F32AVX512(&p, &x[0], n, acc)
+			return
+		}
 		panelDot4F32AVX2(&p, &x[0], n, acc)
 		return
 	}
@@ -27,15 +32,23 @@ func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels
 	for q, pn := range panels {
 		p[q] = &w.Panels.Half[pn*span : (pn+1)*span][0]
 	}
-	if w.DType == F16 {
+	switch {
+	case w.DType == F16 && hasAVX512:
+		panelDot4F16AVX512(&p, &x[0], n, acc)
+	case w.DType == F16:
 		panelDot4F16AVX2(&p, &x[0], n, acc)
-	} else {
+	case hasAVX512:
+		panelDot4BF16AVX512(&p, &x[0], n, acc)
+	default:
 		panelDot4BF16AVX2(&p, &x[0], n, acc)
 	}
 }
 
 // panelKernel names the panel kernel used for w's dtype.
 func panelKernel(dt DType) string {
+	if gemvAsm(dt) && hasAVX512 {
+		return "avx512 4-panel"
+	}
 	if gemvAsm(dt) {
 		return "avx2 4-panel"
 	}
@@ -57,3 +70,19 @@ func panelDot4F16AVX2(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGrou
 //
 //go:noescape
 func panelDot4BF16AVX2(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGroup * PanelRows]float32)
+
+// panelDot4F32AVX512 is panelDot4F32AVX2 with each panel's sixteen outputs
+// in one 512-bit accumulator (panels_amd64.s; the same bits).
+//
+//go:noescape
+func panelDot4F32AVX512(p *[panelGroup]*float32, x *float32, n int, acc *[panelGroup * PanelRows]float32)
+
+// panelDot4F16AVX512 is panelDot4F32AVX512 over binary16 panels (VCVTPH2PS).
+//
+//go:noescape
+func panelDot4F16AVX512(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGroup * PanelRows]float32)
+
+// panelDot4BF16AVX512 is panelDot4F32AVX512 over bfloat16 panels.
+//
+//go:noescape
+func panelDot4BF16AVX512(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGroup * PanelRows]float32)

@@ -137,3 +137,107 @@ bf16loop:
 
 	STOREPANELS
 	RET
+
+// Four-panel dot products in 512-bit registers (where the CPU has
+// AVX-512): each panel's sixteen outputs are one accumulator (Z0 … Z3),
+// widened sixteen weights at a time, with the same per-lane VMULPS then
+// VADDPS in ascending k as the AVX2 kernels above, so the same bits. Same
+// register use and prefetching as PANELSTEP.
+
+// PANELSTEP512 advances Z0 … Z3 by one k; LOAD widens sixteen weights of a
+// panel row into a register, STEP is the row's size in bytes.
+#define PANELSTEP512(LOAD, STEP) \
+	PREFETCHT0   2048(AX)(DX*1); \
+	PREFETCHT0   2048(BX)(DX*1); \
+	PREFETCHT0   2048(R8)(DX*1); \
+	PREFETCHT0   2048(R9)(DX*1); \
+	VBROADCASTSS (SI)(DI*4), Z8; \
+	LOAD(0(AX)(DX*1), Z9); \
+	LOAD(0(BX)(DX*1), Z10); \
+	LOAD(0(R8)(DX*1), Z11); \
+	LOAD(0(R9)(DX*1), Z12); \
+	VMULPS       Z8, Z9, Z9; \
+	VMULPS       Z8, Z10, Z10; \
+	VMULPS       Z8, Z11, Z11; \
+	VMULPS       Z8, Z12, Z12; \
+	VADDPS       Z9, Z0, Z0; \
+	VADDPS       Z10, Z1, Z1; \
+	VADDPS       Z11, Z2, Z2; \
+	VADDPS       Z12, Z3, Z3; \
+	ADDQ         $STEP, DX
+
+// LOADPANELS512 is LOADPANELS with the four accumulators in Z0 … Z3.
+#define LOADPANELS512 \
+	MOVQ    p+0(FP), R13; \
+	MOVQ    0(R13), AX; \
+	MOVQ    8(R13), BX; \
+	MOVQ    16(R13), R8; \
+	MOVQ    24(R13), R9; \
+	MOVQ    x+8(FP), SI; \
+	MOVQ    n+16(FP), CX; \
+	MOVQ    acc+24(FP), R13; \
+	VMOVUPS 0(R13), Z0; \
+	VMOVUPS 64(R13), Z1; \
+	VMOVUPS 128(R13), Z2; \
+	VMOVUPS 192(R13), Z3; \
+	XORQ    DI, DI; \
+	XORQ    DX, DX
+
+// STOREPANELS512 writes Z0 … Z3 back to acc.
+#define STOREPANELS512 \
+	MOVQ    acc+24(FP), R13; \
+	VMOVUPS Z0, 0(R13); \
+	VMOVUPS Z1, 64(R13); \
+	VMOVUPS Z2, 128(R13); \
+	VMOVUPS Z3, 192(R13); \
+	VZEROUPPER
+
+// F32PANEL512 loads sixteen float32 weights at M into R.
+#define F32PANEL512(M, R) VMOVUPS M, R
+
+// F16PANEL512 widens sixteen binary16 patterns at M into R, exactly.
+#define F16PANEL512(M, R) VCVTPH2PS M, R
+
+// BF16PANEL512 widens sixteen bfloat16 patterns at M into R (exact).
+#define BF16PANEL512(M, R) \
+	VPMOVZXWD M, R; \
+	VPSLLD    $16, R, R
+
+// func panelDot4F32AVX512(p *[4]*float32, x *float32, n int, acc *[64]float32)
+TEXT ·panelDot4F32AVX512(SB), NOSPLIT, $0-32
+	LOADPANELS512
+
+f32z:
+	PANELSTEP512(F32PANEL512, 64)
+	INCQ DI
+	CMPQ DI, CX
+	JLT  f32z
+
+	STOREPANELS512
+	RET
+
+// func panelDot4F16AVX512(p *[4]*uint16, x *float32, n int, acc *[64]float32)
+TEXT ·panelDot4F16AVX512(SB), NOSPLIT, $0-32
+	LOADPANELS512
+
+f16z:
+	PANELSTEP512(F16PANEL512, 32)
+	INCQ DI
+	CMPQ DI, CX
+	JLT  f16z
+
+	STOREPANELS512
+	RET
+
+// func panelDot4BF16AVX512(p *[4]*uint16, x *float32, n int, acc *[64]float32)
+TEXT ·panelDot4BF16AVX512(SB), NOSPLIT, $0-32
+	LOADPANELS512
+
+bf16z:
+	PANELSTEP512(BF16PANEL512, 32)
+	INCQ DI
+	CMPQ DI, CX
+	JLT  bf16z
+
+	STOREPANELS512
+	RET
