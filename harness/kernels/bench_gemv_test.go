@@ -95,3 +95,26 @@ func BenchmarkGEMVGather(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkGEMVScatterIn times LinearScatterIn over the neuron-major copy of
+// a 768×3072 down projection with every tenth input kept (307 rows of 768,
+// the sparse MLP's second product), in one goroutine.
+func BenchmarkGEMVScatterIn(b *testing.B) {
+	const in, out = 3072, 768
+	var idx []int32
+	for j := 0; j < in; j += 10 {
+		idx = append(idx, int32(j))
+	}
+	for _, dt := range allDTypes {
+		b.Run(fmt.Sprintf("%dof%d_%v", len(idx), in, dt), func(b *testing.B) {
+			w := benchMat(dt, out, in, true)
+			h := randVec(newRand(7), len(idx))
+			y := make([]float32, out)
+			b.ResetTimer()
+			for range b.N {
+				kernels.LinearScatterIn(y, h, w, nil, idx)
+			}
+			reportWeightGBs(b, weightBytes(dt, len(idx), out))
+		})
+	}
+}
