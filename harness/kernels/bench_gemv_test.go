@@ -33,34 +33,26 @@ var gemvShapes = []struct{ in, out int }{{768, 3072}, {3072, 768}, {768, 768}}
 
 // BenchmarkGEMVRows times the m == 1 row-dot path (Out×In storage) in one
 // goroutine, so that it measures the kernel rather than the scheduler.
-func BenchmarkGEMVRows(b *testing.B) {
-	for _, sh := range gemvShapes {
-		for _, dt := range allDTypes {
-			b.Run(fmt.Sprintf("%dto%d_%v", sh.in, sh.out, dt), func(b *testing.B) {
-				logGEMVKernel(b, dt)
-				w := benchMat(dt, sh.out, sh.in, false)
-				x := randVec(newRand(5), sh.in)
-				y := make([]float32, sh.out)
-				b.ResetTimer()
-				for range b.N {
-					kernels.Linear(y, x, 1, w, nil, 1)
-				}
-				reportWeightGBs(b, weightBytes(dt, sh.out, sh.in))
-			})
-		}
-	}
-}
+func BenchmarkGEMVRows(b *testing.B) { benchGEMV(b, false) }
 
 // BenchmarkGEMVPanels times the m == 1 path the engine runs on its weights
 // (the k-major panel copy) in one goroutine, on the same shapes and dtypes.
 // The 768-wide matrices stay in cache here, so it measures the kernel's
 // arithmetic; a decode step streams them from memory.
-func BenchmarkGEMVPanels(b *testing.B) {
+func BenchmarkGEMVPanels(b *testing.B) { benchGEMV(b, true) }
+
+// benchGEMV runs Linear with m == 1 over gemvShapes and every dtype, with or
+// without the panel copy, and reports GB/s of weights read.
+func benchGEMV(b *testing.B, panels bool) {
 	for _, sh := range gemvShapes {
 		for _, dt := range allDTypes {
 			b.Run(fmt.Sprintf("%dto%d_%v", sh.in, sh.out, dt), func(b *testing.B) {
 				w := benchMat(dt, sh.out, sh.in, false)
-				w.Panels = kernels.PackPanels(w)
+				if panels {
+					w.Panels = kernels.PackPanels(w)
+				} else {
+					logGEMVKernel(b, dt)
+				}
 				x := randVec(newRand(5), sh.in)
 				y := make([]float32, sh.out)
 				b.ResetTimer()
@@ -77,10 +69,7 @@ func BenchmarkGEMVPanels(b *testing.B) {
 // every tenth row kept (307 rows, the sparse MLP's typical density).
 func BenchmarkGEMVGather(b *testing.B) {
 	const in, out = 768, 3072
-	var idx []int32
-	for j := 0; j < out; j += 10 {
-		idx = append(idx, int32(j))
-	}
+	idx := everyTenth(out)
 	for _, dt := range allDTypes {
 		b.Run(fmt.Sprintf("%dof%d_%v", len(idx), out, dt), func(b *testing.B) {
 			logGEMVKernel(b, dt)
@@ -101,10 +90,7 @@ func BenchmarkGEMVGather(b *testing.B) {
 // the sparse MLP's second product), in one goroutine.
 func BenchmarkGEMVScatterIn(b *testing.B) {
 	const in, out = 3072, 768
-	var idx []int32
-	for j := 0; j < in; j += 10 {
-		idx = append(idx, int32(j))
-	}
+	idx := everyTenth(in)
 	for _, dt := range allDTypes {
 		b.Run(fmt.Sprintf("%dof%d_%v", len(idx), in, dt), func(b *testing.B) {
 			w := benchMat(dt, out, in, true)
@@ -117,4 +103,14 @@ func BenchmarkGEMVScatterIn(b *testing.B) {
 			reportWeightGBs(b, weightBytes(dt, len(idx), out))
 		})
 	}
+}
+
+// everyTenth returns 0, 10, 20, … below n: the kept rows of the sparse
+// benchmarks (the sparse MLP's typical 10%).
+func everyTenth(n int) []int32 {
+	var idx []int32
+	for j := 0; j < n; j += 10 {
+		idx = append(idx, int32(j))
+	}
+	return idx
 }

@@ -1,6 +1,7 @@
 package sparsity
 
 import (
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"runtime"
@@ -444,23 +445,7 @@ func TestTopKKeysOnTiesAndNaN(t *testing.T) {
 				slices.Reverse(scores)
 			}
 		}
-		order := make([]int32, n)
-		for i := range order {
-			order[i] = int32(i)
-		}
-		slices.SortStableFunc(order, func(a, b int32) int {
-			if ranksBefore(scores, a, b) {
-				return -1
-			}
-			if ranksBefore(scores, b, a) {
-				return 1
-			}
-			return 0
-		})
-		want := slices.Sorted(slices.Values(order[:k]))
-		if got := topKKeys(nil, make([]uint64, 2*n), scores, k); !slices.Equal(got, want) {
-			t.Fatalf("scores %v k %d: topKKeys kept %v, a full sort %v", scores, k, got, want)
-		}
+		checkTopK(t, fmt.Sprintf("scores %v", scores), scores, k)
 	}
 	// NaN ranks below every number, -Inf included.
 	scores := []float32{float32(math.NaN()), float32(math.Inf(-1)), 2, float32(math.NaN())}
