@@ -28,7 +28,8 @@ func rankKey(v float32, i int) uint64 {
 // rank first (ranksBefore's order: larger first, ties to the lower index,
 // NaN last). scratch must hold at least 2·len(vals) keys. It finds the k-th
 // key (kthKey), then collects every index whose key is at least that one in
-// a single ascending pass, so no sort is needed.
+// a single ascending pass, so no sort is needed; the pass is branch-free
+// when dst has room for len(vals) indices.
 func topKKeys(dst []int32, scratch []uint64, vals []float32, k int) []int32 {
 	n := len(vals)
 	dst = dst[:0]
@@ -47,7 +48,13 @@ func topKKeys(dst []int32, scratch []uint64, vals []float32, k int) []int32 {
 	}
 	t := kthKey(keys, work, k)
 	if cap(dst) < n {
-		dst = make([]int32, 0, n)
+		// No room for the branch-free pass: append the k kept indices.
+		for i, key := range keys {
+			if key >= t {
+				dst = append(dst, int32(i))
+			}
+		}
+		return dst
 	}
 	// Branch-free collection: every index is written, and the count moves
 	// past it only when it is kept (a kept unit's place is taken at random,

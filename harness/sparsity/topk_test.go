@@ -58,9 +58,12 @@ func checkTopK(t *testing.T, name string, vals []float32, k int) {
 		return 0
 	})
 	want := slices.Sorted(slices.Values(order[:k]))
-	got := topKKeys(nil, make([]uint64, 2*n), vals, k)
-	if !slices.Equal(got, want) && !(len(got) == 0 && len(want) == 0) {
-		t.Fatalf("%s: n %d k %d: kept %v, full sort %v", name, n, k, got, want)
+	// Both collections: appending (no room) and branch-free (room for n).
+	for _, dst := range [][]int32{nil, make([]int32, 0, n)} {
+		got := topKKeys(dst, make([]uint64, 2*n), vals, k)
+		if !slices.Equal(got, want) && !(len(got) == 0 && len(want) == 0) {
+			t.Fatalf("%s: n %d k %d (dst room %d): kept %v, full sort %v", name, n, k, cap(dst), got, want)
+		}
 	}
 }
 
