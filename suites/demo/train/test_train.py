@@ -273,5 +273,75 @@ class Curriculum(unittest.TestCase):
                 self.assertIn(msg, err.getvalue())
 
 
+def layer0_attention(model, ids):
+    """layer0_attention returns layer 0's attention probabilities [heads, T, T]
+    for one sequence, computed from the model's weights as its forward pass
+    does (pre-LayerNorm, q scaled by head_dim^-0.5, causal)."""
+    dec = model.model.decoder
+    d, nh = model.hidden, model.heads
+    hd = d // nh
+    t = len(ids)
+    x = dec.embed_tokens.weight[ids] + dec.embed_positions.weight[2:2 + t]
+    a = dec.layers[0].self_attn
+    h = torch.nn.functional.layer_norm(x, (d,), dec.layers[0].self_attn_layer_norm.weight,
+                                       dec.layers[0].self_attn_layer_norm.bias, 1e-5)
+    q = torch.nn.functional.linear(h, a.q_proj.weight, a.q_proj.bias).view(t, nh, hd).transpose(0, 1)
+    k = torch.nn.functional.linear(h, a.k_proj.weight, a.k_proj.bias).view(t, nh, hd).transpose(0, 1)
+    scores = (q * hd ** -0.5) @ k.transpose(-1, -2)
+    scores = scores.masked_fill(torch.triu(torch.ones(t, t, dtype=torch.bool), 1), float("-inf"))
+    return torch.softmax(scores, dim=-1)
+
+
+class PrevHead(unittest.TestCase):
+    """--prev-head builds a previous-token head into layer 0, head 0: frozen
+    sinusoidal position rows and held query/key rows (the model card's
+    copying recipe search)."""
+
+    def test_head_attends_to_the_previous_token_and_is_held(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            args = ["--train", train_path, "--valid", valid_path, "--out", os.path.join(d, "p")] + TINY
+            args += ["--hidden", "64", "--heads", "2", "--prev-head", "3", "--weight-decay", "0"]
+            model = train.OPTDecoder(VOCAB, 64, 2, 2, 64, 64, seed=3)
+            held, rows = train.prev_token_init(model, 3.0, 0.06)
+            self.assertEqual(rows, 32)
+            ids = torch.tensor(np.fromfile(valid_path, dtype="<u2")[:40].astype(np.int64))
+            with torch.no_grad():
+                att = layer0_attention(model, ids)
+            prev = torch.stack([att[0, i, i - 1] for i in range(1, len(ids))])
+            self.assertGreater(float(prev.min()), 0.9, "head 0 at initialisation")
+            other = torch.stack([att[1, i, i - 1] for i in range(1, len(ids))])
+            self.assertLess(float(other.mean()), 0.5, "head 1 is left as initialised")
+            q_init = held[0].detach()[:rows].clone()
+            with contextlib.redirect_stderr(io.StringIO()):
+                trained, log = train.run(train.parse_args(args))
+            self.assertEqual(log["args"]["prev_head"], 3.0)
+            dec = trained.model.decoder
+            # Without weight decay the held rows and the frozen positions keep
+            # their initial values exactly; the rest of the layer trained.
+            a = dec.layers[0].self_attn
+            torch.testing.assert_close(a.q_proj.weight.detach()[:rows], q_init, rtol=0, atol=0)
+            torch.testing.assert_close(dec.embed_positions.weight.detach(), model.model.decoder.embed_positions.weight.detach(),
+                                       rtol=0, atol=0)
+            self.assertFalse(torch.equal(a.q_proj.weight.detach()[rows:], model.model.decoder.layers[0].self_attn.q_proj.weight.detach()[rows:]))
+            with torch.no_grad():
+                att = layer0_attention(trained, ids)
+            prev = torch.stack([att[0, i, i - 1] for i in range(1, len(ids))])
+            self.assertGreater(float(prev.mean()), 0.8, "head 0 after training")
+
+    def test_bad_prev_head_arguments(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            base = ["--train", train_path, "--valid", valid_path, "--out", os.path.join(d, "o")] + TINY
+            for extra, msg in ((["--prev-head", "-1"], "must not be negative"),
+                               (["--prev-head", "1", "--prev-head-pos-amp", "0"], "must be positive"),
+                               (["--prev-head", "1", "--hidden", "30", "--heads", "2"], "even head width")):
+                err = io.StringIO()
+                with contextlib.redirect_stderr(err):
+                    rc = train.main(base + extra)
+                self.assertEqual(rc, 2, err.getvalue())
+                self.assertIn(msg, err.getvalue())
+
+
 if __name__ == "__main__":
     unittest.main()

@@ -177,6 +177,49 @@ class OPTDecoder(nn.Module):
         return logits
 
 
+def prev_token_init(model, gain, amp):
+    """prev_token_init builds a previous-token head into layer 0, head 0, and
+    returns the parameters (and their row count) whose gradient must be held
+    at zero for it to stay.
+
+    The position table becomes amp·(cos, sin) pairs of the position at
+    angular frequencies pi·(k + 1/2)/(hd/2) in dimensions 0 … hd-1 (hd the
+    head width; OPT's offset of 2 kept: row p+2 is position p), zero
+    elsewhere, and is frozen; head 0's key rows are gain·I and its query rows
+    gain·R on those dimensions (R turns each pair one position back), zero
+    elsewhere, so from the first step the head attends to the previous
+    token. Training alone does not form such a head in layer 0 here: a
+    one-layer shortcut takes the layer first (the model card's copying
+    recipe search)."""
+    dec = model.model.decoder
+    hd = model.hidden // model.heads
+    if hd % 2:
+        raise TrainError(f"--prev-head needs an even head width; --hidden {model.hidden} / --heads {model.heads} "
+                         f"is {hd}")
+    nf = hd // 2
+    omega = math.pi * (torch.arange(nf, dtype=torch.float64) + 0.5) / nf
+    pos = torch.arange(dec.embed_positions.weight.shape[0], dtype=torch.float64)[:, None] - POS_OFFSET
+    table = torch.zeros(dec.embed_positions.weight.shape, dtype=torch.float64)
+    table[:, 0:hd:2] = amp * torch.cos(pos * omega)
+    table[:, 1:hd:2] = amp * torch.sin(pos * omega)
+    rot = torch.zeros(hd, hd, dtype=torch.float64)
+    for k in range(nf):
+        c, s = math.cos(float(omega[k])), math.sin(float(omega[k]))
+        rot[2 * k, 2 * k], rot[2 * k, 2 * k + 1] = c, s
+        rot[2 * k + 1, 2 * k], rot[2 * k + 1, 2 * k + 1] = -s, c
+    a = dec.layers[0].self_attn
+    with torch.no_grad():
+        dec.embed_positions.weight.copy_(table.float())
+        a.q_proj.weight[:hd].zero_()
+        a.k_proj.weight[:hd].zero_()
+        a.q_proj.weight[:hd, :hd] = (gain * rot).float()
+        a.k_proj.weight[:hd, :hd] = (gain * torch.eye(hd, dtype=torch.float64)).float()
+        a.q_proj.bias[:hd].zero_()
+        a.k_proj.bias[:hd].zero_()
+    dec.embed_positions.weight.requires_grad_(False)
+    return [a.q_proj.weight, a.k_proj.weight, a.q_proj.bias, a.k_proj.bias], hd
+
+
 def param_groups(model, weight_decay):
     """param_groups puts the q/k/v/out/fc1/fc2 weight matrices under weight decay.
 
@@ -391,6 +434,9 @@ def run(args):
     rng = np.random.Generator(np.random.PCG64(args.seed))
     model = OPTDecoder(args.vocab, args.hidden, args.layers, args.heads, args.ffn, args.max_positions, args.seed,
                        embed_std=args.embed_std)
+    if args.prev_head < 0 or args.prev_head_pos_amp <= 0:
+        raise TrainError("--prev-head must not be negative and --prev-head-pos-amp must be positive")
+    held, held_rows = prev_token_init(model, args.prev_head, args.prev_head_pos_amp) if args.prev_head > 0 else ([], 0)
     opt = torch.optim.AdamW(param_groups(model, args.weight_decay), lr=args.lr, betas=(0.9, 0.95), eps=1e-8)
     starts_valid = validation_windows(valid, args.seq, args.eval_windows)
     n_params = sum(p.numel() for p in model.parameters())
@@ -445,7 +491,9 @@ def run(args):
         loss = ce if act_mean is None else ce + args.act_l1 * act_mean
         opt.zero_grad(set_to_none=True)
         loss.backward()
-        torch.nn.utils.clip_grad_norm_(model.parameters(), 1.0)
+        for p in held:  # --prev-head: the built head's query and key rows take no gradient step
+            p.grad[:held_rows] = 0
+        torch.nn.utils.clip_grad_norm_(model.parameters(), 1.0)  # frozen parameters have no gradient
         opt.step()
         sums["ce"] += float(ce)
         sums["l1"] += 0.0 if act_mean is None else args.act_l1 * float(act_mean)
@@ -503,6 +551,11 @@ def parse_args(argv=None):
                     help="share of each step's windows drawn from --drill at the last step (linear in between)")
     ap.add_argument("--dev", help="dev probes (mkdata's dev.json): log 4-shot accuracy per family at each eval")
     ap.add_argument("--dev-items", type=int, default=40, help="dev probes scored per family at each eval")
+    ap.add_argument("--prev-head", type=float, default=0.0,
+                    help="build a previous-token head into layer 0, head 0, with this gain (0: off): sinusoidal, "
+                         "frozen position rows and held query/key rows; see prev_token_init")
+    ap.add_argument("--prev-head-pos-amp", type=float, default=0.06,
+                    help="amplitude of the position rows --prev-head writes")
     return ap.parse_args(argv)
 
 
