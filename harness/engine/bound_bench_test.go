@@ -93,7 +93,7 @@ func readBandwidth(src []float32) float64 {
 	words := unsafe.Slice((*uint64)(unsafe.Pointer(&src[0])), len(src)/2)
 	half := len(words) / 2
 	var wg sync.WaitGroup
-	sums := make([]uint64, 2*8) // one cache line per goroutine
+	var sums [2]uint64 // written once per goroutine, after its pass
 	t0 := time.Now()
 	for g, r := range [][2]int{{0, half}, {half, len(words)}} {
 		wg.Add(1)
@@ -112,15 +112,11 @@ func readBandwidth(src []float32) float64 {
 				a[6] += c[6]
 				a[7] += c[7]
 			}
-			sums[g*8] = a[0] + a[1] + a[2] + a[3] + a[4] + a[5] + a[6] + a[7]
+			sums[g] = a[0] + a[1] + a[2] + a[3] + a[4] + a[5] + a[6] + a[7]
 		}()
 	}
 	wg.Wait()
-	took := time.Since(t0)
-	if sums[0] == 1 && sums[8] == 1 { // keep the sums live
-		panic("unreachable")
-	}
-	return 8 * float64(len(words)) / took.Seconds()
+	return 8 * float64(len(words)) / time.Since(t0).Seconds()
 }
 
 // copyBufferBytes is the copy loop's buffer size: 256 MiB, eight times the

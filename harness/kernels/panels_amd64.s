@@ -16,17 +16,23 @@
 // about 30 GB/s on one thread, where 512 and 1024 bytes gained less
 // (PERF_NOTES.md). A prefetch past a panel's end never faults.
 
-// LOADPANELS fills AX, BX, R8, R9, SI, CX, zeroes DI and DX and loads the
-// accumulators from acc.
+// PANELARGS fills AX, BX, R8, R9 (the panels), SI (x) and CX (n), zeroes
+// DI and DX, and leaves acc in R13.
+#define PANELARGS \
+	MOVQ p+0(FP), R13; \
+	MOVQ 0(R13), AX; \
+	MOVQ 8(R13), BX; \
+	MOVQ 16(R13), R8; \
+	MOVQ 24(R13), R9; \
+	MOVQ x+8(FP), SI; \
+	MOVQ n+16(FP), CX; \
+	MOVQ acc+24(FP), R13; \
+	XORQ DI, DI; \
+	XORQ DX, DX
+
+// LOADPANELS is PANELARGS, then the accumulators loaded from acc.
 #define LOADPANELS \
-	MOVQ    p+0(FP), R13; \
-	MOVQ    0(R13), AX; \
-	MOVQ    8(R13), BX; \
-	MOVQ    16(R13), R8; \
-	MOVQ    24(R13), R9; \
-	MOVQ    x+8(FP), SI; \
-	MOVQ    n+16(FP), CX; \
-	MOVQ    acc+24(FP), R13; \
+	PANELARGS; \
 	VMOVUPS 0(R13), Y0; \
 	VMOVUPS 32(R13), Y1; \
 	VMOVUPS 64(R13), Y2; \
@@ -34,9 +40,7 @@
 	VMOVUPS 128(R13), Y4; \
 	VMOVUPS 160(R13), Y5; \
 	VMOVUPS 192(R13), Y6; \
-	VMOVUPS 224(R13), Y7; \
-	XORQ    DI, DI; \
-	XORQ    DX, DX
+	VMOVUPS 224(R13), Y7
 
 // STOREPANELS writes the accumulators back to acc.
 #define STOREPANELS \
@@ -168,20 +172,11 @@ bf16loop:
 
 // LOADPANELS512 is LOADPANELS with the four accumulators in Z0 … Z3.
 #define LOADPANELS512 \
-	MOVQ    p+0(FP), R13; \
-	MOVQ    0(R13), AX; \
-	MOVQ    8(R13), BX; \
-	MOVQ    16(R13), R8; \
-	MOVQ    24(R13), R9; \
-	MOVQ    x+8(FP), SI; \
-	MOVQ    n+16(FP), CX; \
-	MOVQ    acc+24(FP), R13; \
+	PANELARGS; \
 	VMOVUPS 0(R13), Z0; \
 	VMOVUPS 64(R13), Z1; \
 	VMOVUPS 128(R13), Z2; \
-	VMOVUPS 192(R13), Z3; \
-	XORQ    DI, DI; \
-	XORQ    DX, DX
+	VMOVUPS 192(R13), Z3
 
 // STOREPANELS512 writes Z0 … Z3 back to acc.
 #define STOREPANELS512 \
