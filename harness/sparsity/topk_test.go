@@ -67,7 +67,7 @@ func checkTopK(t *testing.T, name string, vals []float32, k int) {
 	}
 }
 
-// On inputs large enough for kthKey's sampled threshold, the kept set is
+// On inputs large enough for topKSampled's threshold, the kept set is
 // still exactly the full sort's, on layouts that drive each of its paths:
 // random scores (the threshold lets about 1.5·k keys through), the largest
 // values all on sampled places (fewer than k pass, so it selects among all
@@ -124,5 +124,38 @@ func BenchmarkTopKKeys(b *testing.B) {
 				dst = topKKeys(dst, scratch, vecs[i%len(vecs)], k)
 			}
 		})
+	}
+}
+
+// kthLargestSpare finds the k-th largest of distinct keys for every k, on
+// sizes around its hand-over to kthLargest and above, with keys drawn at
+// random, sorted either way, and crowded into a narrow range.
+func TestKthLargestSpareMatchesSort(t *testing.T) {
+	r := testRand(47)
+	for _, n := range []int{1, 2, selectSmall, selectSmall + 1, 100, 777} {
+		for _, layout := range []string{"random", "ascending", "descending", "narrow"} {
+			keys := make([]uint64, n)
+			for i := range keys {
+				switch layout {
+				case "random":
+					keys[i] = r.Uint64()
+				case "ascending":
+					keys[i] = uint64(i)
+				case "descending":
+					keys[i] = uint64(n - i)
+				case "narrow":
+					keys[i] = 1<<40 + uint64(r.IntN(4))<<32 + uint64(i)
+				}
+			}
+			sorted := slices.Clone(keys)
+			slices.Sort(sorted)
+			for k := 1; k <= n; k++ {
+				a := slices.Clone(keys)
+				got := kthLargestSpare(a, make([]uint64, n), k)
+				if want := sorted[n-k]; got != want {
+					t.Fatalf("%s n %d k %d: got %#x, want %#x", layout, n, k, got, want)
+				}
+			}
+		}
 	}
 }
