@@ -48,6 +48,38 @@ func dot8Rows(acc *[8]float32, x []float32, w *Mat, offs *[8]int, buf []float32)
 	}
 }
 
+// dot16Rows is dot8Rows over sixteen rows (offs[q] for lane q). For
+// binary16 and bfloat16 weights on CPUs with the assembly kernels the two
+// groups of eight run interleaved in one kernel, whose two independent
+// addition chains take about half the time of two eight-row calls; every
+// path gives two dot8RowsGo calls' bits (the chains are independent).
+func dot16Rows(acc *[16]float32, x []float32, w *Mat, offs *[16]int, buf []float32) {
+	n := len(x)
+	blocks := n &^ 7
+	if blocks == 0 || w.DType == F32 || !gemvAsm(w.DType) {
+		dot8Rows((*[8]float32)(acc[0:8]), x, w, (*[8]int)(offs[0:8]), buf)
+		dot8Rows((*[8]float32)(acc[8:16]), x, w, (*[8]int)(offs[8:16]), buf)
+		return
+	}
+	var p [16]*uint16
+	for q, off := range offs {
+		p[q] = &w.Half[off : off+n][0]
+	}
+	if w.DType == F16 {
+		dot16F16AVX2(&p, &x[0], blocks, acc)
+	} else {
+		dot16BF16AVX2(&p, &x[0], blocks, acc)
+	}
+	if blocks < n {
+		var t [8]float32
+		tail := t[:n-blocks]
+		for q, off := range offs {
+			w.convertRange(tail, off+blocks)
+			acc[q] = dotAcc(acc[q], x[blocks:], tail)
+		}
+	}
+}
+
 // gemvAsm reports whether this CPU runs the assembly 8-row kernel for
 // weights of dtype dt.
 func gemvAsm(dt DType) bool {
@@ -83,3 +115,14 @@ func dot8F16AVX2(rows *[8]*uint16, x *float32, n int, acc *[8]float32)
 //
 //go:noescape
 func dot8BF16AVX2(rows *[8]*uint16, x *float32, n int, acc *[8]float32)
+
+// dot16F16AVX2 is dot8F16AVX2 over sixteen rows, as two interleaved groups
+// of eight with their own accumulators (dot8_amd64.s).
+//
+//go:noescape
+func dot16F16AVX2(rows *[16]*uint16, x *float32, n int, acc *[16]float32)
+
+// dot16BF16AVX2 is dot16F16AVX2 over bfloat16 rows.
+//
+//go:noescape
+func dot16BF16AVX2(rows *[16]*uint16, x *float32, n int, acc *[16]float32)

@@ -165,3 +165,130 @@ bf16loop:
 
 	STOREACC
 	RET
+
+// Sixteen-row kernels: two groups of eight rows, each with its own
+// accumulator (Y15 for rows 0 … 7, Y14 for rows 8 … 15), so that two
+// independent addition chains are in flight where the eight-row kernels
+// have one. Lane by lane the order and rounding are dot8F16AVX2's. The
+// row pointers are reloaded from rows (R13) for each group of each block
+// of eight k; AX, BX, DX, R8 … R12 hold the current group's rows.
+
+// MAC4ACC is MAC4 adding into ACC.
+#define MAC4ACC(A0, A1, A2, A3, O0, O1, O2, O3, ACC) \
+	VUNPCKLPS    A1, A0, Y8; \
+	VUNPCKHPS    A1, A0, Y9; \
+	VUNPCKLPS    A3, A2, Y10; \
+	VUNPCKHPS    A3, A2, Y11; \
+	VSHUFPS      $0x44, Y10, Y8, A0; \
+	VSHUFPS      $0xEE, Y10, Y8, A1; \
+	VSHUFPS      $0x44, Y11, Y9, A2; \
+	VSHUFPS      $0xEE, Y11, Y9, A3; \
+	VBROADCASTSS O0(SI)(DI*4), Y12; \
+	VBROADCASTSS O1(SI)(DI*4), Y13; \
+	VMULPS       A0, Y12, Y12; \
+	VMULPS       A1, Y13, Y13; \
+	VADDPS       Y12, ACC, ACC; \
+	VADDPS       Y13, ACC, ACC; \
+	VBROADCASTSS O2(SI)(DI*4), Y12; \
+	VBROADCASTSS O3(SI)(DI*4), Y13; \
+	VMULPS       A2, Y12, Y12; \
+	VMULPS       A3, Y13, Y13; \
+	VADDPS       Y12, ACC, ACC; \
+	VADDPS       Y13, ACC, ACC
+
+// GROUPPTRS loads the eight row pointers of the group at byte offset OFF
+// of the rows array (R13).
+#define GROUPPTRS(OFF) \
+	MOVQ OFF+0(R13), AX; \
+	MOVQ OFF+8(R13), BX; \
+	MOVQ OFF+16(R13), DX; \
+	MOVQ OFF+24(R13), R8; \
+	MOVQ OFF+32(R13), R9; \
+	MOVQ OFF+40(R13), R10; \
+	MOVQ OFF+48(R13), R11; \
+	MOVQ OFF+56(R13), R12
+
+// F16GROUP widens eight k of the current group's binary16 rows, brings
+// them into the split layout and adds them into ACC.
+#define F16GROUP(ACC) \
+	VCVTPH2PS (AX)(DI*2), Y8; \
+	VCVTPH2PS (R9)(DI*2), Y9; \
+	VCVTPH2PS (BX)(DI*2), Y10; \
+	VCVTPH2PS (R10)(DI*2), Y11; \
+	SPLIT(Y8, Y9, Y0, Y4); \
+	SPLIT(Y10, Y11, Y1, Y5); \
+	VCVTPH2PS (DX)(DI*2), Y8; \
+	VCVTPH2PS (R11)(DI*2), Y9; \
+	VCVTPH2PS (R8)(DI*2), Y10; \
+	VCVTPH2PS (R12)(DI*2), Y11; \
+	SPLIT(Y8, Y9, Y2, Y6); \
+	SPLIT(Y10, Y11, Y3, Y7); \
+	MAC4ACC(Y0, Y1, Y2, Y3, 0, 4, 8, 12, ACC); \
+	MAC4ACC(Y4, Y5, Y6, Y7, 16, 20, 24, 28, ACC)
+
+// BF16GROUP is F16GROUP for bfloat16 rows.
+#define BF16GROUP(ACC) \
+	BF16ROW((AX)(DI*2), Y8); \
+	BF16ROW((R9)(DI*2), Y9); \
+	BF16ROW((BX)(DI*2), Y10); \
+	BF16ROW((R10)(DI*2), Y11); \
+	SPLIT(Y8, Y9, Y0, Y4); \
+	SPLIT(Y10, Y11, Y1, Y5); \
+	BF16ROW((DX)(DI*2), Y8); \
+	BF16ROW((R11)(DI*2), Y9); \
+	BF16ROW((R8)(DI*2), Y10); \
+	BF16ROW((R12)(DI*2), Y11); \
+	SPLIT(Y8, Y9, Y2, Y6); \
+	SPLIT(Y10, Y11, Y3, Y7); \
+	MAC4ACC(Y0, Y1, Y2, Y3, 0, 4, 8, 12, ACC); \
+	MAC4ACC(Y4, Y5, Y6, Y7, 16, 20, 24, 28, ACC)
+
+// LOAD16 sets R13 to rows, SI to x, CX to n, zeroes DI and loads the two
+// accumulators from acc.
+#define LOAD16 \
+	MOVQ    acc+24(FP), R13; \
+	VMOVUPS (R13), Y15; \
+	VMOVUPS 32(R13), Y14; \
+	MOVQ    rows+0(FP), R13; \
+	MOVQ    x+8(FP), SI; \
+	MOVQ    n+16(FP), CX; \
+	XORQ    DI, DI
+
+// STORE16 writes the two accumulators back.
+#define STORE16 \
+	MOVQ    acc+24(FP), R13; \
+	VMOVUPS Y15, (R13); \
+	VMOVUPS Y14, 32(R13); \
+	VZEROUPPER
+
+// func dot16F16AVX2(rows *[16]*uint16, x *float32, n int, acc *[16]float32)
+TEXT ·dot16F16AVX2(SB), NOSPLIT, $0-32
+	LOAD16
+
+f16loop16:
+	GROUPPTRS(0)
+	F16GROUP(Y15)
+	GROUPPTRS(64)
+	F16GROUP(Y14)
+	ADDQ $8, DI
+	CMPQ DI, CX
+	JLT  f16loop16
+
+	STORE16
+	RET
+
+// func dot16BF16AVX2(rows *[16]*uint16, x *float32, n int, acc *[16]float32)
+TEXT ·dot16BF16AVX2(SB), NOSPLIT, $0-32
+	LOAD16
+
+bf16loop16:
+	GROUPPTRS(0)
+	BF16GROUP(Y15)
+	GROUPPTRS(64)
+	BF16GROUP(Y14)
+	ADDQ $8, DI
+	CMPQ DI, CX
+	JLT  bf16loop16
+
+	STORE16
+	RET

@@ -10,5 +10,12 @@ func dot8Rows(acc *[8]float32, x []float32, w *Mat, offs *[8]int, buf []float32)
 	dot8RowsGo(acc, x, w, offs, buf)
 }
 
+// dot16Rows is dot8Rows over sixteen rows (offs[q] for lane q), as two
+// eight-row calls.
+func dot16Rows(acc *[16]float32, x []float32, w *Mat, offs *[16]int, buf []float32) {
+	dot8RowsGo((*[8]float32)(acc[0:8]), x, w, (*[8]int)(offs[0:8]), buf)
+	dot8RowsGo((*[8]float32)(acc[8:16]), x, w, (*[8]int)(offs[8:16]), buf)
+}
+
 // gemvKernel names the row-dot (GEMV) kernel used for w's dtype.
 func gemvKernel(DType) string { return "go 8-row" }

@@ -126,17 +126,21 @@ func panelRows(out, x []float32, w *Mat, bias []float32, list []int) {
 		}
 		panelDot4(&acc, x, w, &ps)
 		for q := 0; q < panelGroup && g0+q < len(list); q++ {
-			row0 := ps[q] * PanelRows
-			for i := range PanelRows {
-				r := (g0+q)*PanelRows + i
-				if r >= len(out) || row0+i >= w.Out {
-					break
-				}
-				v := acc[q*PanelRows+i]
-				if bias != nil {
-					v += bias[row0+i]
-				}
-				out[r] = v
+			// The rows of panel q that exist and fit out, as whole slices
+			// (one bounds check each, not one per row).
+			row0, r0 := ps[q]*PanelRows, (g0+q)*PanelRows
+			n := min(PanelRows, len(out)-r0, w.Out-row0)
+			if n <= 0 {
+				continue
+			}
+			dst, src := out[r0:r0+n], acc[q*PanelRows:q*PanelRows+n]
+			if bias == nil {
+				copy(dst, src)
+				continue
+			}
+			b := bias[row0 : row0+n]
+			for i := range dst {
+				dst[i] = src[i] + b[i]
 			}
 		}
 	}
@@ -149,18 +153,32 @@ func gemvPanels(team *Team, y, x []float32, w *Mat, bias []float32, threads int)
 	np := panelCount(w.Out)
 	nJobs := (np + panelGroup - 1) / panelGroup
 	workers := workerCount(team, threads, nJobs, w.Out*w.In)
+	if workers <= 1 {
+		// In the calling goroutine, without the closures runJobs takes
+		// (they escape, and a predictor scores every token this way).
+		var list [panelGroup]int
+		for job := range nJobs {
+			panelJob(y, x, w, bias, job, &list)
+		}
+		return
+	}
 	runJobs(team, nJobs, workers, func() func(int) {
 		var list [panelGroup]int
-		return func(job int) {
-			p0 := job * panelGroup
-			p1 := min(p0+panelGroup, np)
-			for q := p0; q < p1; q++ {
-				list[q-p0] = q
-			}
-			j0 := p0 * PanelRows
-			panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, list[:p1-p0])
-		}
+		return func(job int) { panelJob(y, x, w, bias, job, &list) }
 	})
+}
+
+// panelJob computes gemvPanels's job: the outputs of panels
+// [job·panelGroup, (job+1)·panelGroup) that exist. list is scratch.
+func panelJob(y, x []float32, w *Mat, bias []float32, job int, list *[panelGroup]int) {
+	np := panelCount(w.Out)
+	p0 := job * panelGroup
+	p1 := min(p0+panelGroup, np)
+	for q := p0; q < p1; q++ {
+		list[q-p0] = q
+	}
+	j0 := p0 * PanelRows
+	panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, list[:p1-p0])
 }
 
 // gatherPanels computes LinearGather's y for the idx entries that cover

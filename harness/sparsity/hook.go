@@ -98,20 +98,20 @@ type selector struct {
 }
 
 // scorer evaluates a predictor with its matrices bound once. It gives
-// Predictor.Scores bit for bit: LinearGather over every row equals Linear
-// element for element (the kernels' contract), whatever the thread count.
+// Predictor.Scores bit for bit: its binary16 matrices hold the same values
+// and every Linear path gives the same bits (the kernels' contract),
+// whatever the thread count.
 type scorer struct {
-	p          *Predictor
-	w1, w2     kernels.Mat
-	rows1, all []int32          // 0..Rank-1 and 0..Out-1
-	sc         *kernels.Scratch // the base model's, whose team the second product shares
+	p      *Predictor
+	w1, w2 kernels.Mat
+	sc     *kernels.Scratch // the base model's, whose team the second product shares
 }
 
 // scorer returns unit u's predictor bound to its scoring matrices and to
 // the base model's Scratch.
 func (b *Build) scorer(u Unit) *scorer {
 	p, m := b.preds[u], b.scoring[u]
-	return &scorer{p: p, w1: m[0], w2: m[1], rows1: iota32(p.Rank), all: iota32(p.Out), sc: b.Base.Scratch()}
+	return &scorer{p: p, w1: m[0], w2: m[1], sc: b.Base.Scratch()}
 }
 
 // scores writes one token's scores into dst (hidden is rank-sized scratch).
@@ -119,9 +119,9 @@ func (b *Build) scorer(u Unit) *scorer {
 // holds most of the predictor's weights, splits its outputs over up to
 // threads goroutines.
 func (s *scorer) scores(dst, hidden, x []float32, threads int) {
-	kernels.LinearGather(hidden, x, &s.w1, s.p.B1, s.rows1)
+	s.sc.Linear(hidden, x, 1, &s.w1, s.p.B1, 1)
 	kernels.ReLU(hidden)
-	s.sc.LinearGatherParallel(dst, hidden, &s.w2, s.p.B2, s.all, threads)
+	s.sc.Linear(dst, hidden, 1, &s.w2, s.p.B2, threads)
 }
 
 // iota32 returns 0, 1, …, n-1.
