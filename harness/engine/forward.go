@@ -894,11 +894,11 @@ func (m *Model) mlpRow(st *state, L *layer, idx [][]int32, r int, y []float32) {
 		m.scratch.Linear(y, u, 1, L.down, L.downB, m.threads)
 	} else {
 		m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
-		down := L.down
-		if L.downT != nil {
-			down = L.downT
+		if n := L.neurons; n != nil {
+			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], n.cols, L.downB, n.index(idx[r], n.down), m.threads)
+		} else {
+			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], L.down, L.downB, idx[r], m.threads)
 		}
-		m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], down, L.downB, idx[r], m.threads)
 	}
 	xr := st.x[r*d : (r+1)*d]
 	kernels.Add(xr, xr, y)
@@ -919,9 +919,20 @@ func zeroExcept(u []float32, keep []int32) {
 // mlpHidden computes one token's post-activation MLP values for the neurons
 // idx (all when nil) into dst.
 func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
-	if idx == nil {
+	n := L.neurons
+	switch {
+	case idx == nil:
 		m.scratch.Linear(dst, h, 1, L.up, L.upB, m.threads)
-	} else {
+	case n != nil:
+		// The neuron-major rows, then the bias: LinearGather adds it last,
+		// so adding it here gives the same bits.
+		m.scratch.LinearGatherParallel(dst, h, n.rows, nil, n.index(idx, n.up), m.threads)
+		if L.upB != nil {
+			for r, j := range idx {
+				dst[r] += L.upB[j]
+			}
+		}
+	default:
 		m.scratch.LinearGatherParallel(dst, h, L.up, L.upB, idx, m.threads)
 	}
 	if L.gate == nil {
@@ -929,9 +940,12 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 		return
 	}
 	g := make([]float32, len(dst))
-	if idx == nil {
+	switch {
+	case idx == nil:
 		m.scratch.Linear(g, h, 1, L.gate, nil, m.threads)
-	} else {
+	case n != nil:
+		m.scratch.LinearGatherParallel(g, h, n.rows, nil, n.index(idx, n.gate), m.threads)
+	default:
 		m.scratch.LinearGatherParallel(g, h, L.gate, nil, idx, m.threads)
 	}
 	kernels.SiLUMul(g, dst)

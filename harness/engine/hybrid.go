@@ -29,7 +29,7 @@ func Hybrid(base, other *Model, fromOther func(layer int, mlp bool) bool) (*Mode
 		}
 		if fromOther(li, true) {
 			b.mlpNormW, b.mlpNormB = o.mlpNormW, o.mlpNormB
-			b.up, b.gate, b.down, b.downT = o.up, o.gate, o.down, o.downT
+			b.up, b.gate, b.down, b.neurons = o.up, o.gate, o.down, o.neurons
 			b.upB, b.downB = o.upB, o.downB
 		}
 	}

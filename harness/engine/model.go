@@ -52,7 +52,8 @@ type layer struct {
 	qkvB, qB, kB, vB, oB []float32
 	mlpNormW, mlpNormB   []float32
 	up, gate, down       *kernels.Mat
-	downT, oT            *kernels.Mat // input-major copies of down and o (Options.NeuronMajor), or nil
+	neurons              *neuronRows  // the MLP's neuron-major copy (Options.NeuronMajor), or nil
+	oT                   *kernels.Mat // input-major copy of o (Options.NeuronMajor), or nil
 	upB, downB           []float32
 }
 
@@ -63,12 +64,14 @@ type Options struct {
 	Threads int
 	// NoTokenizer skips loading the tokenizer files even when present.
 	NoTokenizer bool
-	// NeuronMajor keeps, for layouts that store the MLP down projection and
-	// the attention output projection output-major (OPT, Llama), input-major
-	// copies in memory, so a sparse MLP or a head-sparse attention reads only
-	// its kept neurons' or heads' weights instead of touching every cache line
-	// of every row. It costs (FFN+Heads·HeadDim)×Hidden stored values per
-	// layer; sparse builds turn it on. Results are the same bits either way.
+	// NeuronMajor keeps neuron-major copies in memory, so that a sparse MLP
+	// or a head-sparse attention reads only its kept neurons' or heads'
+	// weights, each as one contiguous run: per MLP neuron its gate row
+	// (SwiGLU), up row and down column side by side (neuronRows), and, for
+	// layouts that store the attention output projection output-major (OPT,
+	// Llama), an input-major copy of it. It costs (parts·FFN +
+	// Heads·HeadDim)×Hidden stored values per layer, parts being 2 (3 with a
+	// gate); sparse builds turn it on. Results are the same bits either way.
 	NeuronMajor bool
 	// NoPanels skips the k-major panel copies (kernels.PackPanels) that Load
 	// makes of every layer projection and of the output head. The copies let
@@ -119,14 +122,15 @@ func Load(dir string, opts Options) (*Model, error) {
 		return nil, err
 	}
 	if opts.NeuronMajor {
-		for i := range m.layers {
-			if d := m.layers[i].down; d != nil && !d.Transposed {
-				m.layers[i].downT = neuronMajor(d)
+		parallelJobs(len(m.layers), m.threads, func(next func() (int, bool)) {
+			for i, ok := next(); ok; i, ok = next() {
+				L := &m.layers[i]
+				L.neurons = newNeuronRows(L.up, L.gate, L.down)
+				if o := L.o; o != nil && !o.Transposed {
+					L.oT = neuronMajor(o)
+				}
 			}
-			if o := m.layers[i].o; o != nil && !o.Transposed {
-				m.layers[i].oT = neuronMajor(o)
-			}
-		}
+		})
 	}
 	if !opts.NoPanels {
 		m.packPanels(!opts.NoWiden)

@@ -2,6 +2,7 @@ package kernels_test
 
 import (
 	"fmt"
+	"slices"
 	"testing"
 
 	"sparsegate/harness/kernels"
@@ -113,4 +114,47 @@ func everyTenth(n int) []int32 {
 		idx = append(idx, int32(j))
 	}
 	return idx
+}
+
+// BenchmarkSparseMLPFromMemory times the sparse MLP's two products on
+// weights that come from main memory, as in a real decode step (the other
+// gather benchmarks keep their one matrix in cache): 40 layers' f16 up
+// projections (3072×768) and neuron-major down projections (3072 rows of
+// 768), 377 MB in all, visited in turn, each with its own 307 kept
+// neurons drawn at random. Compare its GB/s with BenchmarkGEMVPanels' dense
+// stream from memory (.ci/bench's decode row).
+func BenchmarkSparseMLPFromMemory(b *testing.B) {
+	const d, ffn, layers, keep = 768, 3072, 40, 307
+	r := newRand(11)
+	ups, downs := make([]*kernels.Mat, layers), make([]*kernels.Mat, layers)
+	idxs := make([][]int32, layers)
+	for l := range layers {
+		up := make([]uint16, ffn*d)
+		for i := range up {
+			up[i] = 0x3000 + uint16((i*7+l)%1024)
+		}
+		down := make([]uint16, ffn*d)
+		copy(down, up)
+		ups[l] = &kernels.Mat{DType: kernels.F16, Out: ffn, In: d, Half: up}
+		downs[l] = &kernels.Mat{DType: kernels.F16, Out: d, In: ffn, Transposed: true, Half: down}
+		perm := r.Perm(ffn)[:keep]
+		slices.Sort(perm)
+		for _, p := range perm {
+			idxs[l] = append(idxs[l], int32(p))
+		}
+	}
+	x := randVec(r, d)
+	hid, y := make([]float32, keep), make([]float32, d)
+	b.Run("gather", func(b *testing.B) {
+		for i := range b.N {
+			kernels.LinearGather(hid, x, ups[i%layers], nil, idxs[i%layers])
+		}
+		reportWeightGBs(b, weightBytes(kernels.F16, keep, d))
+	})
+	b.Run("scatter", func(b *testing.B) {
+		for i := range b.N {
+			kernels.LinearScatterIn(y, hid, downs[i%layers], nil, idxs[i%layers])
+		}
+		reportWeightGBs(b, weightBytes(kernels.F16, keep, d))
+	})
 }

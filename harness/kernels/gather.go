@@ -89,6 +89,13 @@ func LinearScatterIn(y, h []float32, w *Mat, bias []float32, idx []int32) {
 		return
 	}
 	// Stored In×Out: input idx[r] selects a contiguous storage row.
+	// Binary16 rows go in one pass over their whole width: each kept row
+	// is then one stream, which memory serves faster than two half-rows
+	// read in separate passes (the outputs' order is the same either way).
+	if w.DType == F16 {
+		scatterBlock(y, h, w, bias, idx, 0, w.Out, nil)
+		return
+	}
 	var buf [gemvColsJob]float32
 	for j0 := 0; j0 < w.Out; j0 += gemvColsJob {
 		scatterBlock(y, h, w, bias, idx, j0, min(j0+gemvColsJob, w.Out), buf[:])

@@ -199,12 +199,15 @@ func gatherPanels(y, x []float32, w *Mat, bias []float32, idx []int32, rest []in
 		}
 		panelDot4(&acc, x, w, &list)
 		for q := range n {
-			for i := range PanelRows {
-				v := acc[q*PanelRows+i]
-				if bias != nil {
-					v += bias[list[q]*PanelRows+i]
-				}
-				y[at[q]+i] = v
+			// Whole slices: one bounds check each, not one per row.
+			dst, src := y[at[q]:at[q]+PanelRows], acc[q*PanelRows:(q+1)*PanelRows]
+			if bias == nil {
+				copy(dst, src)
+				continue
+			}
+			b := bias[list[q]*PanelRows : (list[q]+1)*PanelRows]
+			for i := range dst {
+				dst[i] = src[i] + b[i]
 			}
 		}
 		n = 0
