@@ -22,9 +22,14 @@ func (s *Scratch) LinearGatherParallel(y, x []float32, w *Mat, bias []float32, i
 		LinearGather(y, x, w, bias, idx)
 		return
 	}
+	// One even share per worker, in whole groups of sixteen rows (the row
+	// kernel's step): 307 kept rows on two workers are 160 and 147, where
+	// jobs of gatherJob rows left one worker 179 and the other 128.
+	size := ((len(idx)+workers-1)/workers + 15) &^ 15
+	jobs = (len(idx) + size - 1) / size
 	runJobs(s.team(), jobs, workers, func() func(int) {
 		return func(j int) {
-			r0, r1 := j*gatherJob, min((j+1)*gatherJob, len(idx))
+			r0, r1 := j*size, min((j+1)*size, len(idx))
 			LinearGather(y[r0:r1], x, w, bias, idx[r0:r1])
 		}
 	})
