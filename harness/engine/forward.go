@@ -789,7 +789,7 @@ func (m *Model) headNorms(st *state, li, r int, q, k, v []float32) []float32 {
 
 // gatherMLPShare returns the largest mean kept fraction of a batch of R rows
 // at which the MLP runs as per-row gathers (kept rows of the up projection,
-// kept columns of the down projection, with the AVX2 eight-row GEMV); above
+// kept columns of the down projection, with the row-dot GEMV); above
 // it the batch runs as batched dense products with the dropped neurons
 // zeroed. Both give the same bits, so this is a speed choice only: the
 // cheaper of the two per block. Break-even points measured with
