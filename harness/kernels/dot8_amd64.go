@@ -30,22 +30,13 @@ func dot8Rows(acc *[8]float32, x []float32, w *Mat, offs *[8]int, buf []float32)
 		return
 	}
 	var p [8]*uint16
-	for q, off := range offs {
-		p[q] = &w.Half[off : off+n][0]
-	}
+	halfRowPtrs(p[:], w, offs[:], n)
 	if w.DType == F16 {
 		dot8F16AVX2(&p, &x[0], blocks, acc)
 	} else {
 		dot8BF16AVX2(&p, &x[0], blocks, acc)
 	}
-	if blocks < n {
-		var t [8]float32
-		tail := t[:n-blocks]
-		for q, off := range offs {
-			w.convertRange(tail, off+blocks)
-			acc[q] = dotAcc(acc[q], x[blocks:], tail)
-		}
-	}
+	halfTail(acc[:], x, w, offs[:], blocks)
 }
 
 // dot16Rows is dot8Rows over sixteen rows (offs[q] for lane q). For
@@ -62,21 +53,36 @@ func dot16Rows(acc *[16]float32, x []float32, w *Mat, offs *[16]int, buf []float
 		return
 	}
 	var p [16]*uint16
-	for q, off := range offs {
-		p[q] = &w.Half[off : off+n][0]
-	}
+	halfRowPtrs(p[:], w, offs[:], n)
 	if w.DType == F16 {
 		dot16F16AVX2(&p, &x[0], blocks, acc)
 	} else {
 		dot16BF16AVX2(&p, &x[0], blocks, acc)
 	}
-	if blocks < n {
-		var t [8]float32
-		tail := t[:n-blocks]
-		for q, off := range offs {
-			w.convertRange(tail, off+blocks)
-			acc[q] = dotAcc(acc[q], x[blocks:], tail)
-		}
+	halfTail(acc[:], x, w, offs[:], blocks)
+}
+
+// halfRowPtrs points p[q] at the first of the n stored half-precision
+// values of the row that starts at element offs[q] of w's storage.
+func halfRowPtrs(p []*uint16, w *Mat, offs []int, n int) {
+	for q, off := range offs {
+		p[q] = &w.Half[off : off+n][0]
+	}
+}
+
+// halfTail finishes the row dots after the assembly's blocks of eight:
+// acc[q] continues over the last len(x)-blocks values of the row at
+// offs[q], converted in Go, in ascending k.
+func halfTail(acc, x []float32, w *Mat, offs []int, blocks int) {
+	n := len(x)
+	if blocks == n {
+		return
+	}
+	var t [8]float32
+	tail := t[:n-blocks]
+	for q, off := range offs {
+		w.convertRange(tail, off+blocks)
+		acc[q] = dotAcc(acc[q], x[blocks:], tail)
 	}
 }
 

@@ -42,11 +42,11 @@
 	VMOVUPS Y15, (R13); \
 	VZEROUPPER
 
-// MAC4 transposes the split-layout group A0 … A3 (four consecutive k) in
-// its lanes and adds x[k+j]·column_j to the accumulators for j = 0 … 3, in
-// order; O0 … O3 are the byte offsets of those x values from x[k].
-// Clobbers A0 … A3 and Y8 … Y13.
-#define MAC4(A0, A1, A2, A3, O0, O1, O2, O3) \
+// MAC4ACC transposes the split-layout group A0 … A3 (four consecutive k)
+// in its lanes and adds x[k+j]·column_j to the accumulators in ACC for
+// j = 0 … 3, in order; O0 … O3 are the byte offsets of those x values from
+// x[k]. Clobbers A0 … A3 and Y8 … Y13.
+#define MAC4ACC(A0, A1, A2, A3, O0, O1, O2, O3, ACC) \
 	VUNPCKLPS    A1, A0, Y8; \
 	VUNPCKHPS    A1, A0, Y9; \
 	VUNPCKLPS    A3, A2, Y10; \
@@ -59,14 +59,17 @@
 	VBROADCASTSS O1(SI)(DI*4), Y13; \
 	VMULPS       A0, Y12, Y12; \
 	VMULPS       A1, Y13, Y13; \
-	VADDPS       Y12, Y15, Y15; \
-	VADDPS       Y13, Y15, Y15; \
+	VADDPS       Y12, ACC, ACC; \
+	VADDPS       Y13, ACC, ACC; \
 	VBROADCASTSS O2(SI)(DI*4), Y12; \
 	VBROADCASTSS O3(SI)(DI*4), Y13; \
 	VMULPS       A2, Y12, Y12; \
 	VMULPS       A3, Y13, Y13; \
-	VADDPS       Y12, Y15, Y15; \
-	VADDPS       Y13, Y15, Y15
+	VADDPS       Y12, ACC, ACC; \
+	VADDPS       Y13, ACC, ACC
+
+// MAC4 is MAC4ACC into the eight-row kernels' accumulator Y15.
+#define MAC4(A0, A1, A2, A3, O0, O1, O2, O3) MAC4ACC(A0, A1, A2, A3, O0, O1, O2, O3, Y15)
 
 // SPLIT turns two converted full rows LO = w_i[k..k+7] and HI =
 // w_{i+4}[k..k+7] into the split-layout pair A (k..k+3) and B (k+4..k+7).
@@ -172,29 +175,6 @@ bf16loop:
 // have one. Lane by lane the order and rounding are dot8F16AVX2's. The
 // row pointers are reloaded from rows (R13) for each group of each block
 // of eight k; AX, BX, DX, R8 … R12 hold the current group's rows.
-
-// MAC4ACC is MAC4 adding into ACC.
-#define MAC4ACC(A0, A1, A2, A3, O0, O1, O2, O3, ACC) \
-	VUNPCKLPS    A1, A0, Y8; \
-	VUNPCKHPS    A1, A0, Y9; \
-	VUNPCKLPS    A3, A2, Y10; \
-	VUNPCKHPS    A3, A2, Y11; \
-	VSHUFPS      $0x44, Y10, Y8, A0; \
-	VSHUFPS      $0xEE, Y10, Y8, A1; \
-	VSHUFPS      $0x44, Y11, Y9, A2; \
-	VSHUFPS      $0xEE, Y11, Y9, A3; \
-	VBROADCASTSS O0(SI)(DI*4), Y12; \
-	VBROADCASTSS O1(SI)(DI*4), Y13; \
-	VMULPS       A0, Y12, Y12; \
-	VMULPS       A1, Y13, Y13; \
-	VADDPS       Y12, ACC, ACC; \
-	VADDPS       Y13, ACC, ACC; \
-	VBROADCASTSS O2(SI)(DI*4), Y12; \
-	VBROADCASTSS O3(SI)(DI*4), Y13; \
-	VMULPS       A2, Y12, Y12; \
-	VMULPS       A3, Y13, Y13; \
-	VADDPS       Y12, ACC, ACC; \
-	VADDPS       Y13, ACC, ACC
 
 // GROUPPTRS loads the eight row pointers of the group at byte offset OFF
 // of the rows array (R13).
