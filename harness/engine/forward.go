@@ -174,6 +174,7 @@ func (m *Model) forward(sessions []*Session, tokens [][]int, hook Hook, from *Pr
 		return nil, nil, nil
 	}
 	st := m.newState(R)
+	defer m.putState(st)
 	st.rows, st.sessions, st.hook = rows, sessions, hook
 	first := 0
 	if from != nil {
@@ -286,9 +287,33 @@ type state struct {
 	tmp      []float32
 	layerIn  []float32 // residual entering the current layer (hook only)
 	prevIn   []float32 // residual entering the previous layer (hook only)
+	one      *rowScratch
 }
 
+// rowScratch holds the buffers a hooked single-row step uses at every
+// layer (attentionHooked, mlpRow), kept with a single-row state so that a
+// decode step allocates none of them afresh: on a large heap fresh memory
+// means first-touch page faults, which measured a fifth of a sparse decode
+// step (PERF_NOTES.md, session 8).
+type rowScratch struct {
+	q, k, v, fk, fv, scores []float32
+	present                 []bool
+	idxQ, idxKV, idxO, nidx []int32
+}
+
+// newState returns a Forward's scratch for R rows: for one row, a state
+// a previous single-row call handed back (cleared, so it equals a fresh
+// one), else a fresh one.
 func (m *Model) newState(R int) *state {
+	if R == 1 && m.states != nil {
+		if st, ok := m.states.Get().(*state); ok {
+			for _, b := range [][]float32{st.x, st.h, st.q, st.k, st.v, st.a, st.u, st.g, st.tmp} {
+				clear(b)
+			}
+			st.layerIn, st.prevIn = st.layerIn[:0], st.prevIn[:0]
+			return st
+		}
+	}
 	c := m.Config
 	hd := c.Heads * c.HeadDim
 	kv := c.KVHeads * c.HeadDim
@@ -302,7 +327,24 @@ func (m *Model) newState(R int) *state {
 	if c.Family == checkpoint.Llama {
 		st.g = make([]float32, R*c.FFN)
 	}
+	if R == 1 {
+		st.one = &rowScratch{
+			q: make([]float32, hd), k: make([]float32, kv), v: make([]float32, kv),
+			fk: make([]float32, kv), fv: make([]float32, kv), present: make([]bool, c.KVHeads),
+		}
+	}
 	return st
+}
+
+// putState hands a single-row state back for the next single-row call
+// (nothing of it outlives Forward: hooks see its buffers only during their
+// calls, and Forward returns fresh slices).
+func (m *Model) putState(st *state) {
+	if len(st.rows) != 1 || st.one == nil || m.states == nil {
+		return
+	}
+	st.rows, st.sessions, st.hook = nil, nil, nil
+	m.states.Put(st)
 }
 
 // norm applies the family's normalisation to one vector.
@@ -434,9 +476,14 @@ func (m *Model) attentionHooked(st *state, li int) {
 	qd, kvd := c.Heads*hd, c.KVHeads*hd
 	group := c.Heads / c.KVHeads
 	y := st.tmp[:d]
-	q, k, v := make([]float32, qd), make([]float32, kvd), make([]float32, kvd)
-	present := make([]bool, c.KVHeads)
-	var scores []float32
+	one := st.one
+	if one == nil { // not a single-row state (R is 1 on every caller today)
+		one = &rowScratch{q: make([]float32, qd), k: make([]float32, kvd), v: make([]float32, kvd),
+			fk: make([]float32, kvd), fv: make([]float32, kvd), present: make([]bool, c.KVHeads)}
+	}
+	q, k, v, present := one.q, one.k, one.v, one.present
+	scores := one.scores
+	defer func() { one.scores = scores }()
 	for r := 0; r < R; r++ {
 		s := st.sessions[st.rows[r].seq]
 		pos := st.rows[r].pos
@@ -453,7 +500,7 @@ func (m *Model) attentionHooked(st *state, li int) {
 				}
 			}
 		}
-		m.projectQKV(L, h, q, k, v, heads, groups)
+		m.projectQKV(L, h, q, k, v, heads, groups, one)
 		nq, nkv := c.Heads, c.KVHeads
 		if heads != nil {
 			nq, nkv = len(heads), len(groups)
@@ -466,7 +513,9 @@ func (m *Model) attentionHooked(st *state, li int) {
 			s.appendKV(li, k, v, nil)
 		} else {
 			// Unpack the computed groups into a full cache row; absent ones stay zero.
-			fk, fv := make([]float32, kvd), make([]float32, kvd)
+			fk, fv := one.fk, one.fv
+			clear(fk)
+			clear(fv)
 			clear(present)
 			for i, g := range groups {
 				copy(fk[int(g)*hd:(int(g)+1)*hd], k[i*hd:(i+1)*hd])
@@ -490,7 +539,8 @@ func (m *Model) attentionHooked(st *state, li int) {
 			if L.oT != nil {
 				o = L.oT
 			}
-			m.scratch.LinearScatterInParallel(y, a[:nq*hd], o, L.oB, headColumns(heads, hd), m.threads)
+			one.idxO = headColumns(one.idxO, heads, hd)
+			m.scratch.LinearScatterInParallel(y, a[:nq*hd], o, L.oB, one.idxO, m.threads)
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
@@ -500,7 +550,7 @@ func (m *Model) attentionHooked(st *state, li int) {
 // projectQKV computes one token's queries for the kept heads and keys and
 // values for the kept key/value heads (all when heads is nil), each packed
 // head after head.
-func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32) {
+func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32, one *rowScratch) {
 	c := m.Config
 	d, hd := c.Hidden, c.HeadDim
 	if L.qkv != nil { // fused GPT-2 layout: logical rows q [0,d), k [d,2d), v [2d,3d)
@@ -512,8 +562,8 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 			copy(v, all[2*d:])
 			return
 		}
-		idx := headColumns(heads, hd)
-		kc := headColumns(groups, hd)
+		idx := headColumns(nil, heads, hd)
+		kc := headColumns(nil, groups, hd)
 		for _, j := range kc {
 			idx = append(idx, int32(d)+j)
 		}
@@ -534,9 +584,11 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 		m.scratch.Linear(v, h, 1, L.v, L.vB, m.threads)
 		return
 	}
-	kc := headColumns(groups, hd)
+	one.idxKV = headColumns(one.idxKV, groups, hd)
+	one.idxQ = headColumns(one.idxQ, heads, hd)
+	kc := one.idxKV
 	m.scratch.LinearGatherParts(h, []kernels.GatherPart{
-		{Y: q[:len(heads)*hd], W: L.q, Bias: L.qB, Idx: headColumns(heads, hd)},
+		{Y: q[:len(heads)*hd], W: L.q, Bias: L.qB, Idx: one.idxQ},
 		{Y: k[:len(kc)], W: L.k, Bias: L.kB, Idx: kc},
 		{Y: v[:len(kc)], W: L.v, Bias: L.vB, Idx: kc},
 	}, m.threads)
@@ -735,9 +787,10 @@ func (m *Model) attendBlockHead(st *state, li, r0, r1, h int, s *Session, as *at
 	}
 }
 
-// headColumns expands head indices to the indices of their hd-wide slices.
-func headColumns(heads []int32, hd int) []int32 {
-	idx := make([]int32, 0, len(heads)*hd)
+// headColumns expands head indices to the indices of their hd-wide slices,
+// into dst[:0] (grown when short).
+func headColumns(dst, heads []int32, hd int) []int32 {
+	idx := dst[:0]
 	for _, h := range heads {
 		for j := 0; j < hd; j++ {
 			idx = append(idx, h*int32(hd)+int32(j))
@@ -754,7 +807,7 @@ func (m *Model) denseHeadNorms(st *state, li, r int) []float32 {
 	c, L := m.Config, &m.layers[li]
 	d, hd, qd, kvd := c.Hidden, c.HeadDim, c.Heads*c.HeadDim, c.KVHeads*c.HeadDim
 	q, k, v := make([]float32, qd), make([]float32, kvd), make([]float32, kvd)
-	m.projectQKV(L, st.h[r*d:(r+1)*d], q, k, v, nil, nil)
+	m.projectQKV(L, st.h[r*d:(r+1)*d], q, k, v, nil, nil, nil)
 	pos := st.rows[r].pos
 	if m.rope != nil {
 		kernels.Rope(q, hd, pos, m.rope)
@@ -821,7 +874,7 @@ func (m *Model) mlp(st *state, li int) {
 			h := tok.Input
 			tok.dense = func() []float32 {
 				act := make([]float32, f)
-				m.mlpHidden(act, h, L, nil)
+				m.mlpHidden(act, h, L, nil, nil)
 				return act
 			}
 			toks[r] = tok
@@ -867,7 +920,11 @@ func (m *Model) mlp(st *state, li int) {
 	}
 	if R == 1 || m.threads == 1 {
 		for r := 0; r < R; r++ {
-			m.mlpRow(st, L, idx, r, st.tmp[:d])
+			var nbuf *[]int32
+			if st.one != nil {
+				nbuf = &st.one.nidx
+			}
+			m.mlpRow(st, L, idx, r, st.tmp[:d], nbuf)
 		}
 		return
 	}
@@ -877,25 +934,27 @@ func (m *Model) mlp(st *state, li int) {
 	one := m.WithThreads(1)
 	parallelJobs(R, m.threads, func(next func() (int, bool)) {
 		y := make([]float32, d)
+		var nbuf []int32
 		for r, ok := next(); ok; r, ok = next() {
-			one.mlpRow(st, L, idx, r, y)
+			one.mlpRow(st, L, idx, r, y, &nbuf)
 		}
 	})
 }
 
 // mlpRow runs row r's MLP on the neurons idx[r] (all when nil) and adds it
-// to the row's residual; y is d-sized scratch.
-func (m *Model) mlpRow(st *state, L *layer, idx [][]int32, r int, y []float32) {
+// to the row's residual; y is d-sized scratch, nbuf (nil: allocate) the
+// caller's buffer for neuron-major indices.
+func (m *Model) mlpRow(st *state, L *layer, idx [][]int32, r int, y []float32, nbuf *[]int32) {
 	d, f := m.Config.Hidden, m.Config.FFN
 	h := st.h[r*d : (r+1)*d]
 	u := st.u[r*f : (r+1)*f]
 	if idx[r] == nil {
-		m.mlpHidden(u, h, L, nil)
+		m.mlpHidden(u, h, L, nil, nil)
 		m.scratch.Linear(y, u, 1, L.down, L.downB, m.threads)
 	} else {
-		m.mlpHidden(u[:len(idx[r])], h, L, idx[r])
+		m.mlpHidden(u[:len(idx[r])], h, L, idx[r], nbuf)
 		if n := L.neurons; n != nil {
-			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], n.cols, L.downB, n.index(idx[r], n.down), m.threads)
+			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], n.cols, L.downB, n.index(nbuf, idx[r], n.down), m.threads)
 		} else {
 			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], L.down, L.downB, idx[r], m.threads)
 		}
@@ -917,8 +976,8 @@ func zeroExcept(u []float32, keep []int32) {
 }
 
 // mlpHidden computes one token's post-activation MLP values for the neurons
-// idx (all when nil) into dst.
-func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
+// idx (all when nil) into dst; nbuf is as for mlpRow.
+func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32, nbuf *[]int32) {
 	n := L.neurons
 	switch {
 	case idx == nil:
@@ -926,7 +985,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	case n != nil:
 		// The neuron-major rows, then the bias: LinearGather adds it last,
 		// so adding it here gives the same bits.
-		m.scratch.LinearGatherParallel(dst, h, n.rows, nil, n.index(idx, n.up), m.threads)
+		m.scratch.LinearGatherParallel(dst, h, n.rows, nil, n.index(nbuf, idx, n.up), m.threads)
 		if L.upB != nil {
 			for r, j := range idx {
 				dst[r] += L.upB[j]
@@ -944,7 +1003,7 @@ func (m *Model) mlpHidden(dst, h []float32, L *layer, idx []int32) {
 	case idx == nil:
 		m.scratch.Linear(g, h, 1, L.gate, nil, m.threads)
 	case n != nil:
-		m.scratch.LinearGatherParallel(g, h, n.rows, nil, n.index(idx, n.gate), m.threads)
+		m.scratch.LinearGatherParallel(g, h, n.rows, nil, n.index(nbuf, idx, n.gate), m.threads)
 	default:
 		m.scratch.LinearGatherParallel(g, h, L.gate, nil, idx, m.threads)
 	}

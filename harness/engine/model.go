@@ -41,6 +41,7 @@ type Model struct {
 	scratch *kernels.Scratch                    // the products' packing buffers, reused across calls
 	attn    *sync.Pool                          // of *attnScratch: blocked attention's buffers
 	kvFree  *sync.Pool                          // of *kvMemory: closed sessions' caches, for NewSession
+	states  *sync.Pool                          // of *state: single-row Forward scratch, reused
 	sources map[*kernels.Mat]*checkpoint.Tensor // the tensor each matrix was bound from, until Load returns
 }
 
@@ -108,7 +109,7 @@ func Load(dir string, opts Options) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads, scratch: new(kernels.Scratch), attn: new(sync.Pool), kvFree: new(sync.Pool)}
+	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads, scratch: new(kernels.Scratch), attn: new(sync.Pool), kvFree: new(sync.Pool), states: new(sync.Pool)}
 	if m.threads <= 0 {
 		m.threads = runtime.NumCPU()
 	}

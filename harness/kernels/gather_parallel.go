@@ -53,10 +53,13 @@ func (s *Scratch) LinearScatterInParallel(y, h []float32, w *Mat, bias []float32
 	jobs := (w.Out + gemvColsJob - 1) / gemvColsJob
 	workers := workerCount(s.team(), threads, jobs, len(idx)*w.Out)
 	runJobs(s.team(), jobs, workers, func() func(int) {
-		var buf [gemvColsJob]float32
+		var buf []float32 // conversion scratch; binary16 rows need none
+		if w.DType != F16 {
+			buf = make([]float32, gemvColsJob)
+		}
 		return func(job int) {
 			j0 := job * gemvColsJob
-			scatterBlock(y, h, w, bias, idx, j0, min(j0+gemvColsJob, w.Out), buf[:])
+			scatterBlock(y, h, w, bias, idx, j0, min(j0+gemvColsJob, w.Out), buf)
 		}
 	})
 }
