@@ -197,3 +197,27 @@ func TestWideningGivesTheSameBits(t *testing.T) {
 		}
 	}
 }
+
+// A single-row Forward hands its state back for the next one: a decode
+// after other sequences (hooked and dense, another model view sharing the
+// pool) gives the bits of the same decode on a freshly loaded model, and
+// the pool really is in use.
+func TestReusedDecodeStateLeavesNoTrace(t *testing.T) {
+	for _, f := range families {
+		t.Run(string(f), func(t *testing.T) {
+			m := tinyModel(t, f, 2, nil)
+			fresh, err := Load(m.Dir, Options{Threads: 2})
+			require.NoError(t, err)
+			defer fresh.Close()
+			toks := seq(18, 96, 21)
+			h := posHook{heads: m.Config.Heads}
+			want := decodeLogProbs(t, fresh, toks, h)
+			decodeLogProbs(t, m, seq(30, 96, 5), h)
+			decodeLogProbs(t, m.WithThreads(1), seq(12, 96, 6), nil)
+			st, ok := m.states.Get().(*state)
+			require.True(t, ok, "no single-row state was handed back")
+			m.states.Put(st)
+			require.Equal(t, want, decodeLogProbs(t, m, toks, h))
+		})
+	}
+}
