@@ -328,12 +328,19 @@ func (m *Model) newState(R int) *state {
 		st.g = make([]float32, R*c.FFN)
 	}
 	if R == 1 {
-		st.one = &rowScratch{
-			q: make([]float32, hd), k: make([]float32, kv), v: make([]float32, kv),
-			fk: make([]float32, kv), fv: make([]float32, kv), present: make([]bool, c.KVHeads),
-		}
+		st.one = m.newRowScratch()
 	}
 	return st
+}
+
+// newRowScratch returns the buffers of a hooked single-row step.
+func (m *Model) newRowScratch() *rowScratch {
+	c := m.Config
+	qd, kvd := c.Heads*c.HeadDim, c.KVHeads*c.HeadDim
+	return &rowScratch{
+		q: make([]float32, qd), k: make([]float32, kvd), v: make([]float32, kvd),
+		fk: make([]float32, kvd), fv: make([]float32, kvd), present: make([]bool, c.KVHeads),
+	}
 }
 
 // putState hands a single-row state back for the next single-row call
@@ -473,17 +480,15 @@ func (m *Model) attentionHookedBatch(st *state, li int) {
 func (m *Model) attentionHooked(st *state, li int) {
 	c, L := m.Config, &m.layers[li]
 	R, d, hd := len(st.rows), c.Hidden, c.HeadDim
-	qd, kvd := c.Heads*hd, c.KVHeads*hd
+	qd := c.Heads * hd
 	group := c.Heads / c.KVHeads
 	y := st.tmp[:d]
 	one := st.one
 	if one == nil { // not a single-row state (R is 1 on every caller today)
-		one = &rowScratch{q: make([]float32, qd), k: make([]float32, kvd), v: make([]float32, kvd),
-			fk: make([]float32, kvd), fv: make([]float32, kvd), present: make([]bool, c.KVHeads)}
+		one = m.newRowScratch()
 	}
 	q, k, v, present := one.q, one.k, one.v, one.present
 	scores := one.scores
-	defer func() { one.scores = scores }()
 	for r := 0; r < R; r++ {
 		s := st.sessions[st.rows[r].seq]
 		pos := st.rows[r].pos
@@ -545,6 +550,7 @@ func (m *Model) attentionHooked(st *state, li int) {
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
 	}
+	one.scores = scores // kept for the next layer's and step's calls
 }
 
 // projectQKV computes one token's queries for the kept heads and keys and

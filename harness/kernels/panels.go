@@ -133,15 +133,11 @@ func panelRows(out, x []float32, w *Mat, bias []float32, list []int) {
 			if n <= 0 {
 				continue
 			}
-			dst, src := out[r0:r0+n], acc[q*PanelRows:q*PanelRows+n]
-			if bias == nil {
-				copy(dst, src)
-				continue
+			var b []float32
+			if bias != nil {
+				b = bias[row0 : row0+n]
 			}
-			b := bias[row0 : row0+n]
-			for i := range dst {
-				dst[i] = src[i] + b[i]
-			}
+			putOutputs(out[r0:r0+n], acc[q*PanelRows:q*PanelRows+n], b)
 		}
 	}
 }
@@ -181,6 +177,21 @@ func panelJob(y, x []float32, w *Mat, bias []float32, job int, list *[panelGroup
 	panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, list[:p1-p0])
 }
 
+// putOutputs writes a panel's sums src to dst, each plus its bias when
+// bias is not nil (the bias last, as every path adds it), as whole slices:
+// one bounds check each, not one per row.
+func putOutputs(dst, src, bias []float32) {
+	if bias == nil {
+		copy(dst, src)
+		return
+	}
+	bias = bias[:len(dst)]
+	src = src[:len(dst)]
+	for i := range dst {
+		dst[i] = src[i] + bias[i]
+	}
+}
+
 // gatherPanels computes LinearGather's y for the idx entries that cover
 // whole panels (sixteen consecutive rows starting at a multiple of
 // PanelRows) from w's panels, and returns the positions r of the entries it
@@ -199,16 +210,11 @@ func gatherPanels(y, x []float32, w *Mat, bias []float32, idx []int32, rest []in
 		}
 		panelDot4(&acc, x, w, &list)
 		for q := range n {
-			// Whole slices: one bounds check each, not one per row.
-			dst, src := y[at[q]:at[q]+PanelRows], acc[q*PanelRows:(q+1)*PanelRows]
-			if bias == nil {
-				copy(dst, src)
-				continue
+			var b []float32
+			if bias != nil {
+				b = bias[list[q]*PanelRows : (list[q]+1)*PanelRows]
 			}
-			b := bias[list[q]*PanelRows : (list[q]+1)*PanelRows]
-			for i := range dst {
-				dst[i] = src[i] + b[i]
-			}
+			putOutputs(y[at[q]:at[q]+PanelRows], acc[q*PanelRows:(q+1)*PanelRows], b)
 		}
 		n = 0
 	}

@@ -124,15 +124,6 @@ func (s *scorer) scores(dst, hidden, x []float32, threads int) {
 	s.sc.Linear(dst, hidden, 1, &s.w2, s.p.B2, threads)
 }
 
-// iota32 returns 0, 1, …, n-1.
-func iota32(n int) []int32 {
-	s := make([]int32, n)
-	for i := range s {
-		s[i] = int32(i)
-	}
-	return s
-}
-
 // Heads implements engine.Hook.
 func (h *hook) Heads(t *engine.Token) []int32 {
 	return h.choose(&h.sel[t.Layer][1], t.Input, t.PrevLayerInput, t.Dense)
