@@ -14,7 +14,8 @@
 // iteration prefetches every stream 2048 bytes ahead: on the development
 // machine (Zen 2) that took a DRAM-resident 3072×768 f16 product from 17 to
 // about 30 GB/s on one thread, where 512 and 1024 bytes gained less
-// (PERF_NOTES.md). A prefetch past a panel's end never faults.
+// (PERF_NOTES.md). A prefetch past a panel's end never faults. The
+// 512-bit kernels below do not prefetch (see there).
 
 // PANELARGS fills AX, BX, R8, R9 (the panels), SI (x) and CX (n), zeroes
 // DI and DX, and leaves acc in R13.
@@ -146,15 +147,16 @@ bf16loop:
 // AVX-512): each panel's sixteen outputs are one accumulator (Z0 … Z3),
 // widened sixteen weights at a time, with the same per-lane VMULPS then
 // VADDPS in ascending k as the AVX2 kernels above, so the same bits. Same
-// register use and prefetching as PANELSTEP.
+// register use as PANELSTEP, but no software prefetch: on the Zen 4
+// machine of session 9 the four PREFETCHT0 per k (one per 32 bytes of each
+// f16 stream) held a decode step's weight stream from memory at 24–27
+// GB/s on two threads, and without them it read 27–32 GB/s, as fast as a
+// plain read-only pass there; the hardware prefetchers follow the four
+// streams alone (PERF_NOTES.md).
 
 // PANELSTEP512 advances Z0 … Z3 by one k; LOAD widens sixteen weights of a
 // panel row into a register, STEP is the row's size in bytes.
 #define PANELSTEP512(LOAD, STEP) \
-	PREFETCHT0   2048(AX)(DX*1); \
-	PREFETCHT0   2048(BX)(DX*1); \
-	PREFETCHT0   2048(R8)(DX*1); \
-	PREFETCHT0   2048(R9)(DX*1); \
 	VBROADCASTSS (SI)(DI*4), Z8; \
 	LOAD(0(AX)(DX*1), Z9); \
 	LOAD(0(BX)(DX*1), Z10); \
