@@ -537,9 +537,15 @@ func (m *Model) attentionHooked(st *state, li int) {
 			}
 			scores = m.attendHead(a[i*hd:(i+1)*hd], q[i*hd:(i+1)*hd], s, li, hh, pos+1, scores)
 		}
-		if heads == nil {
+		switch {
+		case heads == nil:
 			m.scratch.Linear(y, a, 1, L.o, L.oB, m.threads)
-		} else {
+		case L.o.Panels != nil:
+			// A kept head's hd inputs are one contiguous stretch of
+			// every panel of o: streamed at the dense GEMV's speed.
+			one.idxO = headColumns(one.idxO, heads, hd)
+			m.scratch.LinearScatterInPanels(y, a[:nq*hd], L.o, L.oB, one.idxO, m.threads)
+		default:
 			o := L.o
 			if L.oT != nil {
 				o = L.oT

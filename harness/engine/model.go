@@ -54,7 +54,7 @@ type layer struct {
 	mlpNormW, mlpNormB   []float32
 	up, gate, down       *kernels.Mat
 	neurons              *neuronRows  // the MLP's neuron-major copy (Options.NeuronMajor), or nil
-	oT                   *kernels.Mat // input-major copy of o (Options.NeuronMajor), or nil
+	oT                   *kernels.Mat // input-major copy of o (Options.NeuronMajor with NoPanels), or nil
 	upB, downB           []float32
 }
 
@@ -68,11 +68,14 @@ type Options struct {
 	// NeuronMajor keeps neuron-major copies in memory, so that a sparse MLP
 	// or a head-sparse attention reads only its kept neurons' or heads'
 	// weights, each as one contiguous run: per MLP neuron its gate row
-	// (SwiGLU), up row and down column side by side (neuronRows), and, for
-	// layouts that store the attention output projection output-major (OPT,
-	// Llama), an input-major copy of it. It costs (parts·FFN +
-	// Heads·HeadDim)×Hidden stored values per layer, parts being 2 (3 with a
-	// gate); sparse builds turn it on. Results are the same bits either way.
+	// (SwiGLU), up row and down column side by side (neuronRows), and, with
+	// NoPanels, for layouts that store the attention output projection
+	// output-major (OPT, Llama), an input-major copy of it (with panels, a
+	// kept head's inputs are already one contiguous stretch of each panel
+	// of the output projection: kernels.LinearScatterInPanels). It costs
+	// parts·FFN×Hidden stored values per layer, parts being 2 (3 with a
+	// gate), plus Heads·HeadDim×Hidden with NoPanels; sparse builds turn it
+	// on. Results are the same bits either way.
 	NeuronMajor bool
 	// NoPanels skips the k-major panel copies (kernels.PackPanels) that Load
 	// makes of every layer projection and of the output head. The copies let
@@ -127,7 +130,8 @@ func Load(dir string, opts Options) (*Model, error) {
 			for i, ok := next(); ok; i, ok = next() {
 				L := &m.layers[i]
 				L.neurons = newNeuronRows(L.up, L.gate, L.down)
-				if o := L.o; o != nil && !o.Transposed {
+				if o := L.o; o != nil && !o.Transposed && opts.NoPanels {
+					// With panels, kept heads read o's panels instead.
 					L.oT = neuronMajor(o)
 				}
 			}

@@ -106,8 +106,9 @@ func TestSkippedKeyValueHeadsEqualZeroedWeights(t *testing.T) {
 }
 
 // The neuron-major copies (each neuron's gate, up and down weights side by
-// side; o input-major) change memory layout only: hooked decode gives the
-// same bits on every family, in f32 and f16, on 1 and 3 threads.
+// side; o input-major when there are no panels) change memory layout only:
+// hooked decode gives the same bits on every family, in f32 and f16, on 1
+// and 3 threads, with and without panels.
 func TestNeuronMajorGivesTheSameBits(t *testing.T) {
 	for _, f := range families {
 		for _, dt := range []checkpoint.DType{checkpoint.F32, checkpoint.F16} {
@@ -121,13 +122,20 @@ func TestNeuronMajorGivesTheSameBits(t *testing.T) {
 				h := posHook{heads: m.Config.Heads}
 				want := decodeLogProbs(t, m, toks, h)
 				for _, threads := range []int{1, 3} {
-					nm, err := Load(dir, Options{Threads: threads, NeuronMajor: true})
-					require.NoError(t, err)
-					for li := range nm.layers {
-						require.NotNil(t, nm.layers[li].neurons, "layer %d has no neuron-major copy", li)
+					for _, noPanels := range []bool{false, true} {
+						nm, err := Load(dir, Options{Threads: threads, NeuronMajor: true, NoPanels: noPanels})
+						require.NoError(t, err)
+						for li := range nm.layers {
+							require.NotNil(t, nm.layers[li].neurons, "layer %d has no neuron-major copy", li)
+							// Without panels, dropped heads scatter from an
+							// input-major copy of o (OPT and Llama store o
+							// output-major); with them, from o's panels.
+							wantOT := noPanels && !nm.layers[li].o.Transposed
+							require.Equal(t, wantOT, nm.layers[li].oT != nil, "layer %d: input-major copy of o", li)
+						}
+						require.Equal(t, want, decodeLogProbs(t, nm, toks, h), "%d threads, NoPanels %v", threads, noPanels)
+						nm.Close()
 					}
-					require.Equal(t, want, decodeLogProbs(t, nm, toks, h), "%d threads", threads)
-					nm.Close()
 				}
 			})
 		}

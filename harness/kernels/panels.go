@@ -88,12 +88,21 @@ const panelGroup = 4
 // rounding as the row-dot path. It is the portable twin of the assembly
 // panel kernels.
 func panelDot4Go(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int) {
+	*acc = [panelGroup * PanelRows]float32{}
+	panelDot4AtGo(acc, x, w, panels, 0)
+}
+
+// panelDot4AtGo continues acc[PanelRows·q+i] by Σ_j x[j]·P[k0+j][i] for
+// the panel P = panels[q] of w, j ascending, each product rounded to
+// float32 before it is added (len(x) ≤ w.In−k0): the accumulators go on
+// from the values acc holds, so consecutive calls over runs of k give the
+// bits of one call over their union.
+func panelDot4AtGo(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int, k0 int) {
 	in := w.In
 	var buf [PanelRows]float32
 	for q, p := range panels {
 		a := (*[PanelRows]float32)(acc[q*PanelRows : (q+1)*PanelRows])
-		*a = [PanelRows]float32{}
-		off := p * in * PanelRows
+		off := (p*in + k0) * PanelRows
 		for k, xv := range x {
 			row := buf[:]
 			o := off + k*PanelRows

@@ -9,17 +9,30 @@ package kernels
 // vectors, eight independent accumulators in all; where the CPU has
 // AVX-512, sixteen outputs per panel in one 512-bit vector.
 func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int) {
+	*acc = [panelGroup * PanelRows]float32{}
+	panelDot4At(acc, x, w, panels, 0)
+}
+
+// panelDot4At continues acc[PanelRows·q+i] by Σ_j x[j]·P[k0+j][i] over the
+// panels P = panels[q] of w (len(x) ≤ w.In−k0), j ascending, from the
+// values acc holds: panelDot4AtGo's bits. The assembly kernels load the
+// accumulators from acc and store them back, so runs of k taken one call
+// at a time give the bits of one call over their union.
+func panelDot4At(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int, k0 int) {
 	n := len(x)
-	if n == 0 || !gemvAsm(w.DType) {
-		panelDot4Go(acc, x, w, panels)
+	if n == 0 {
 		return
 	}
-	span := n * PanelRows
-	*acc = [panelGroup * PanelRows]float32{}
+	if !gemvAsm(w.DType) {
+		panelDot4AtGo(acc, x, w, panels, k0)
+		return
+	}
+	span := w.In * PanelRows
+	lo, hi := k0*PanelRows, (k0+n)*PanelRows
 	if w.DType == F32 {
 		var p [panelGroup]*float32
 		for q, pn := range panels {
-			p[q] = &w.Panels.F32[pn*span : (pn+1)*span][0]
+			p[q] = &w.Panels.F32[pn*span : (pn+1)*span][lo:hi][0]
 		}
 		if hasAVX512 {
 			panelDot4F32AVX512(&p, &x[0], n, acc)
@@ -30,7 +43,7 @@ func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels
 	}
 	var p [panelGroup]*uint16
 	for q, pn := range panels {
-		p[q] = &w.Panels.Half[pn*span : (pn+1)*span][0]
+		p[q] = &w.Panels.Half[pn*span : (pn+1)*span][lo:hi][0]
 	}
 	switch {
 	case w.DType == F16 && hasAVX512:

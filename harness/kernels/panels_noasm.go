@@ -8,5 +8,11 @@ func panelDot4(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels
 	panelDot4Go(acc, x, w, panels)
 }
 
+// panelDot4At continues acc by Σ_j x[j]·P[k0+j][i] over the panels
+// P = panels[q] of w (panelDot4AtGo).
+func panelDot4At(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int, k0 int) {
+	panelDot4AtGo(acc, x, w, panels, k0)
+}
+
 // panelKernel names the panel kernel used for w's dtype.
 func panelKernel(DType) string { return "go 4-panel" }

@@ -1,0 +1,93 @@
+package kernels_test
+
+import (
+	"fmt"
+	"math"
+	"testing"
+
+	"github.com/stretchr/testify/require"
+
+	"sparsegate/harness/kernels"
+)
+
+// keptRuns draws a strictly ascending subset of [0, n) made of runs of
+// consecutive inputs separated by gaps of 1 to 40: single inputs and short
+// runs (scattered neurons) as often as runs of 64 (kept attention heads) and
+// of any length up to 70.
+func keptRuns(r interface{ IntN(int) int }, n int) []int32 {
+	var idx []int32
+	for k := r.IntN(5); k < n; {
+		run := [...]int{1, 1, 2, 3, 64, 1 + r.IntN(70)}[r.IntN(6)]
+		for i := k; i < min(k+run, n); i++ {
+			idx = append(idx, int32(i))
+		}
+		k += run + 1 + r.IntN(40)
+	}
+	return idx
+}
+
+// LinearScatterInPanels gives LinearScatterIn's bits (the input-major copy's
+// path and the Out×In path alike) for every dtype, stored layout, output
+// count (whole panel groups, a short last group, a short last panel) and
+// thread count, and writes every output and nothing past them. A summation
+// that skipped the carried accumulators between runs, started a run at the
+// wrong k, or added the bias before the products would differ in bits.
+func TestLinearScatterInPanelsMatchesScatterIn(t *testing.T) {
+	r := newRand(91)
+	team := kernels.NewTeam(2)
+	defer team.Close()
+	for _, dt := range []kernels.DType{kernels.F32, kernels.F16, kernels.BF16} {
+		for _, tr := range []bool{false, true} {
+			for _, out := range []int{768, 100, 7} {
+				in := 384
+				name := fmt.Sprintf("%v/transposed=%v/out=%d", dt, tr, out)
+				w, logical := testMat(r, dt, out, in, tr)
+				w.Panels = kernels.PackPanels(w)
+				idx := keptRuns(r, in)
+				h := randVec(r, len(idx))
+				bias := randVec(r, out)
+				for _, b := range [][]float32{nil, bias} {
+					want := make([]float32, out)
+					kernels.LinearScatterIn(want, h, w, b, idx)
+					// The scatter itself against a float64 sum of the
+					// decoded weights (rounding error only).
+					for j := range out {
+						var s float64
+						for r, k := range idx {
+							s += float64(h[r]) * float64(logical[j][k])
+						}
+						if b != nil {
+							s += float64(b[j])
+						}
+						require.InDelta(t, s, float64(want[j]), 1e-4*(1+math.Abs(s)), "%s: LinearScatterIn output %d", name, j)
+					}
+					for _, th := range []int{1, 2, 3} {
+						g := newGuarded(out)
+						s := &kernels.Scratch{Team: team}
+						s.LinearScatterInPanels(g.s, h, w, b, idx, th)
+						g.check(t, name)
+						require.Equal(t, -1, bitsEqual(want, g.s), "%s bias=%v threads=%d: first output whose bits differ from LinearScatterIn", name, b != nil, th)
+					}
+				}
+				// Every input kept is the dense product, bit for bit.
+				all := make([]int32, in)
+				for i := range all {
+					all[i] = int32(i)
+				}
+				x := randVec(r, in)
+				dense, got := make([]float32, out), make([]float32, out)
+				kernels.Linear(dense, x, 1, w, bias, 1)
+				new(kernels.Scratch).LinearScatterInPanels(got, x, w, bias, all, 1)
+				require.Equal(t, -1, bitsEqual(dense, got), "%s: first output where all inputs kept differs from the dense GEMV", name)
+			}
+		}
+	}
+}
+
+// A Mat without its panel copy is a programming error.
+func TestLinearScatterInPanelsNeedsPanels(t *testing.T) {
+	w, _ := testMat(newRand(3), kernels.F32, 16, 8, false)
+	mustPanic(t, "LinearScatterInPanels", "kernels: LinearScatterInPanels: w has no panel copy (PackPanels)", func() {
+		new(kernels.Scratch).LinearScatterInPanels(make([]float32, 16), []float32{1}, w, nil, []int32{0}, 1)
+	})
+}
