@@ -84,6 +84,25 @@ func TestLinearScatterInPanelsMatchesScatterIn(t *testing.T) {
 	}
 }
 
+// A NaN among the kept inputs reaches every output, as in LinearScatterIn
+// (checked with IsNaN: NaN payloads are not part of the contract).
+func TestLinearScatterInPanelsPropagatesNaN(t *testing.T) {
+	r := newRand(17)
+	for _, dt := range []kernels.DType{kernels.F32, kernels.F16, kernels.BF16} {
+		w, _ := testMat(r, dt, 40, 130, false)
+		w.Panels = kernels.PackPanels(w)
+		idx := []int32{3, 4, 5, 64, 65, 129}
+		h := randVec(r, len(idx))
+		h[4] = float32(math.NaN())
+		want, got := make([]float32, 40), make([]float32, 40)
+		kernels.LinearScatterIn(want, h, w, nil, idx)
+		new(kernels.Scratch).LinearScatterInPanels(got, h, w, nil, idx, 1)
+		for j := range got {
+			require.True(t, math.IsNaN(float64(want[j])) && math.IsNaN(float64(got[j])), "%v: output %d = %v (LinearScatterIn %v), want NaN", dt, j, got[j], want[j])
+		}
+	}
+}
+
 // A Mat without its panel copy is a programming error.
 func TestLinearScatterInPanelsNeedsPanels(t *testing.T) {
 	w, _ := testMat(newRand(3), kernels.F32, 16, 8, false)
