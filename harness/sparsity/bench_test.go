@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"os"
 	"path/filepath"
+	"slices"
 	"sync"
 	"testing"
 
@@ -109,12 +110,20 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	}
 	up := mat("model.decoder.layers.0.fc1.weight", cfg.FFN, cfg.Hidden)
 	down := mat("model.decoder.layers.0.fc2.weight", cfg.Hidden, cfg.FFN)
-	downT := &kernels.Mat{DType: kernels.F16, Out: cfg.Hidden, In: cfg.FFN, Transposed: true, Half: make([]uint16, len(down.Half))}
-	for j := 0; j < cfg.Hidden; j++ { // the neuron-major copy a sparse build keeps
-		for k := 0; k < cfg.FFN; k++ {
-			downT.Half[k*cfg.Hidden+j] = down.Half[j*cfg.FFN+k]
+	// The neuron-major copy a sparse build keeps (engine.Options.NeuronMajor,
+	// harness/engine/neurons.go): neuron j's up row and down column side by
+	// side, one storage seen as 2·FFN rows of Hidden for the gather (row 2j)
+	// and as the Transposed matrix with 2·FFN inputs for the scatter (input
+	// 2j+1).
+	nm := make([]uint16, 2*cfg.FFN*cfg.Hidden)
+	for j := 0; j < cfg.FFN; j++ {
+		copy(nm[2*j*cfg.Hidden:(2*j+1)*cfg.Hidden], up.Half[j*cfg.Hidden:(j+1)*cfg.Hidden])
+		for k := 0; k < cfg.Hidden; k++ {
+			nm[(2*j+1)*cfg.Hidden+k] = down.Half[k*cfg.FFN+j]
 		}
 	}
+	rows := &kernels.Mat{DType: kernels.F16, Out: 2 * cfg.FFN, In: cfg.Hidden, Half: nm}
+	cols := &kernels.Mat{DType: kernels.F16, Out: cfg.Hidden, In: 2 * cfg.FFN, Transposed: true, Half: nm}
 	// The dense block runs as the engine runs it: on the panel copies
 	// engine.Load makes (the sparse block's scattered rows do not use them).
 	up.Panels, down.Panels = kernels.PackPanels(up), kernels.PackPanels(down)
@@ -135,13 +144,33 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	order := make([]uint64, 2*cfg.FFN)
 	k := bld.Rule(u).K
 	idx := make([]int32, 0, cfg.FFN)
+	upIdx, downIdx := make([]int32, cfg.FFN), make([]int32, cfg.FFN)
+	// Once, untimed: the copy gives the separate matrices' bits.
+	sc.scores(scores, ph, x, 1)
+	idx = topKInto(idx, order, scores, k)
+	for r, j := range idx {
+		upIdx[r], downIdx[r] = 2*j, 2*j+1
+	}
+	want, got := make([]float32, cfg.Hidden), make([]float32, cfg.Hidden)
+	kernels.LinearGather(hid[:k], x, up, nil, idx)
+	kernels.ReLU(hid[:k])
+	kernels.LinearScatterIn(want, hid[:k], down, nil, idx)
+	kernels.LinearGather(hid[:k], x, rows, nil, upIdx[:k])
+	kernels.ReLU(hid[:k])
+	kernels.LinearScatterIn(got, hid[:k], cols, nil, downIdx[:k])
+	if !slices.Equal(want, got) {
+		b.Fatal("the neuron-major copy does not give the separate matrices' result")
+	}
 	b.Run("keep10", func(b *testing.B) {
 		for range b.N {
 			sc.scores(scores, ph, x, 1)
 			idx = topKInto(idx, order, scores, k)
-			kernels.LinearGather(hid[:k], x, up, nil, idx)
+			for r, j := range idx { // the engine's neuronRows.index
+				upIdx[r], downIdx[r] = 2*j, 2*j+1
+			}
+			kernels.LinearGather(hid[:k], x, rows, nil, upIdx[:k])
 			kernels.ReLU(hid[:k])
-			kernels.LinearScatterIn(y, hid[:k], downT, nil, idx)
+			kernels.LinearScatterIn(y, hid[:k], cols, nil, downIdx[:k])
 		}
 	})
 }
