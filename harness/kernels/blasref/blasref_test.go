@@ -107,17 +107,27 @@ var benchShapes = [][3]int{
 	{256, 128, 128}, {256, 128, 512}, {256, 512, 128}, {256, 128, 2048},
 }
 
-// BenchmarkGemmVsOpenBLAS runs the project's GEMM (B packed on every call,
-// the packing buffers kept between calls in a kernels.Scratch, as OpenBLAS
-// keeps its own buffer and thread pool) and OpenBLAS's cblas_sgemm
-// alternately on the same inputs, both on 2 threads, swapping which goes
-// first every iteration, and reports each side's GFLOPS from the median of
-// its timings and their ratio (ours/OpenBLAS). It also times, in
-// the same rotation, the product the engine runs on its weights: the same B
-// as a kernels.Mat carrying its panel copy (kernels.PackPanels, made once
-// as the engine does at load, outside the timing), reported as
-// prepacked-GFLOPS and prepacked-ratio. Read it with -benchtime Nx: each
-// iteration runs all three.
+// BenchmarkGemmVsOpenBLAS runs the project's GEMM (B packed on every call)
+// and OpenBLAS's cblas_sgemm on the same inputs, both on 2 threads, and
+// reports each side's GFLOPS from the median of its calls' times and their
+// ratio (ours/OpenBLAS). It also times the product the engine runs on its
+// weights: the same B as a kernels.Mat carrying its panel copy
+// (kernels.PackPanels, made once as the engine does at load, outside the
+// timing), reported as prepacked-GFLOPS and prepacked-ratio. Read it with
+// -benchtime Nx: N rounds.
+//
+// Each side runs as it does in use, its thread pool warm: ours through a
+// kernels.Scratch with a Team of threads-1 helper goroutines (as
+// engine.Load sets one up), OpenBLAS through its own pool. A round gives
+// each side a phase of back-to-back calls, the sides in an order that
+// swaps every round: phaseWarm of untimed calls first (the other side's
+// idle threads stop polling for work and sleep, this side's wake up), then
+// phaseTimed of calls, each timed. Timing single calls alternately instead
+// made every call pay for waking its side's threads, which at the demo
+// model's small shapes timed thread start-up more than arithmetic.
+// .ci/bench runs it with OPENBLAS_THREAD_TIMEOUT=24 (OpenBLAS's threads
+// poll about 2²⁴ cycles, a few milliseconds, after each call: warm through
+// a phase, asleep well within the next phase's warm-up).
 func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 	SetThreads(threads)
 	if got := Threads(); got != threads {
@@ -130,9 +140,10 @@ func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 			r := rand.New(rand.NewPCG(5, 6))
 			a, bb := randMat(r, m*k), randMat(r, k*n)
 			c1, c2, c3 := make([]float32, m*n), make([]float32, m*n), make([]float32, m*n)
-			// Both of ours keep their packing buffers between calls in a
-			// Scratch, as OpenBLAS keeps its own buffer and thread pool.
-			var s, sc kernels.Scratch
+			s := kernels.Scratch{Team: kernels.NewTeam(threads - 1)}
+			sc := kernels.Scratch{Team: kernels.NewTeam(threads - 1)}
+			defer s.Team.Close()
+			defer sc.Team.Close()
 			plain := &kernels.Mat{DType: kernels.F32, Out: n, In: k, Transposed: true, F32: bb}
 			ours := func() { sc.Linear(c1, a, m, plain, nil, threads) }
 			ref := func() { Sgemm(c2, a, bb, m, k, n) }
@@ -148,21 +159,26 @@ func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 				b.Fatal("the pre-packed, per-call and kernels.Gemm products differ")
 			}
 			var to, tr, tp []time.Duration
-			timed := func(f func()) time.Duration {
-				t0 := time.Now()
-				f()
-				return time.Since(t0)
+			phase := func(f func(), into *[]time.Duration) {
+				for t0 := time.Now(); time.Since(t0) < phaseWarm; {
+					f()
+				}
+				for t0 := time.Now(); time.Since(t0) < phaseTimed; {
+					c0 := time.Now()
+					f()
+					*into = append(*into, time.Since(c0))
+				}
 			}
 			b.ResetTimer()
 			for i := range b.N {
 				if i%2 == 0 {
-					to = append(to, timed(ours))
-					tr = append(tr, timed(ref))
-					tp = append(tp, timed(packed))
+					phase(ours, &to)
+					phase(ref, &tr)
+					phase(packed, &tp)
 				} else {
-					tp = append(tp, timed(packed))
-					tr = append(tr, timed(ref))
-					to = append(to, timed(ours))
+					phase(packed, &tp)
+					phase(ref, &tr)
+					phase(ours, &to)
 				}
 			}
 			b.StopTimer()
@@ -177,6 +193,12 @@ func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 		})
 	}
 }
+
+// The phases of BenchmarkGemmVsOpenBLAS: untimed calls, then timed ones.
+const (
+	phaseWarm  = 50 * time.Millisecond
+	phaseTimed = 150 * time.Millisecond
+)
 
 func median(d []time.Duration) time.Duration {
 	s := slices.Clone(d)
