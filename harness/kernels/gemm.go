@@ -61,6 +61,24 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 		})
 	}
 
+	// When the rows are split, several jobs sweep each column block: pack
+	// B's blocks once for the call, shared read-only, instead of once per
+	// job (weights read in place need no packing at all).
+	var shared []float32
+	if split > 1 && !readsPanelsInPlace(w, 0) {
+		shared = sc.packedA(colJobs * ncJob * k)
+		defer sc.putPackedA(shared)
+		kBlocks := (k + kcBlock - 1) / kcBlock
+		runJobs(sc.team(), colJobs*kBlocks, min(workers, colJobs*kBlocks), func() func(int) {
+			conv := make([]float32, max(kcBlock, ncJob))
+			return func(job int) {
+				j0, k0 := (job/kBlocks)*ncJob, (job%kBlocks)*kcBlock
+				kc := min(kcBlock, k-k0)
+				packB(sharedBlock(shared, k, j0, k0, kc), conv, w, k0, kc, j0, min(j0+ncJob, n))
+			}
+		})
+	}
+
 	ws := &workerScratch{s: sc, sets: make([]*gemmScratch, max(workers, 1))}
 	defer sc.put(ws.sets)
 	runJobs(sc.team(), colJobs*split, workers, func() func(int) {
@@ -68,24 +86,46 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 		return func(job int) {
 			j0 := (job / split) * ncJob
 			p0 := (job % split) * panelsPerSplit
-			gemmJob(y, pa, m, w, bias, s, p0, min(p0+panelsPerSplit, rowPanels), j0, min(j0+ncJob, n))
+			gemmJob(y, pa, m, w, bias, s, shared, p0, min(p0+panelsPerSplit, rowPanels), j0, min(j0+ncJob, n))
 		}
 	})
 }
 
+// readsPanelsInPlace reports whether the GEMM reads w's B blocks for the
+// column block starting at j0 straight from its f32 panel copy (no
+// packing).
+func readsPanelsInPlace(w *Mat, j0 int) bool {
+	return w.Panels != nil && w.DType == F32 && nr == PanelRows && j0%PanelRows == 0
+}
+
+// sharedBlock is the part of a call's shared packed B (colJobs·ncJob·k
+// floats) that holds the column block starting at j0 over the k block
+// [k0, k0+kc), in packB's layout.
+func sharedBlock(shared []float32, k, j0, k0, kc int) []float32 {
+	base := j0*k + k0*ncJob
+	return shared[base : base+ncJob*kc]
+}
+
 // gemmJob computes output columns [j0, j1) for the rows of row panels
-// [p0, p1) of the packed x pa (rows past m are skipped).
-func gemmJob(y, pa []float32, m int, w *Mat, bias []float32, s *gemmScratch, p0, p1, j0, j1 int) {
+// [p0, p1) of the packed x pa (rows past m are skipped). B's blocks come
+// from w's f32 panels in place, from the call's shared packed B when
+// shared is not nil, or are packed into s.
+func gemmJob(y, pa []float32, m int, w *Mat, bias []float32, s *gemmScratch, shared []float32, p0, p1, j0, j1 int) {
 	n, k := w.Out, w.In
 	mPad := (m + mr - 1) / mr * mr
 	colPanels := (j1 - j0 + nr - 1) / nr
 	// f32 weight panels are the packed B layout already: read them in place.
-	direct := w.Panels != nil && w.DType == F32 && nr == PanelRows && j0%PanelRows == 0
+	direct := readsPanelsInPlace(w, j0)
 	for k0 := 0; k0 < k; k0 += kcBlock {
 		kc := min(kcBlock, k-k0)
 		first, last := k0 == 0, k0+kc == k
-		if !direct {
-			packB(s.pb, s.conv, w, k0, kc, j0, j1)
+		pb := s.pb
+		switch {
+		case direct:
+		case shared != nil:
+			pb = sharedBlock(shared, k, j0, k0, kc)
+		default:
+			packB(pb, s.conv, w, k0, kc, j0, j1)
 		}
 		// panel is column panel jp's B block at this k block.
 		panel := func(jp int) []float32 {
@@ -93,7 +133,7 @@ func gemmJob(y, pa []float32, m int, w *Mat, bias []float32, s *gemmScratch, p0,
 				src := (((j0+jp*nr)/PanelRows)*k + k0) * PanelRows
 				return w.Panels.F32[src : src+kc*PanelRows]
 			}
-			return s.pb[jp*nr*kc : (jp+1)*nr*kc]
+			return pb[jp*nr*kc : (jp+1)*nr*kc]
 		}
 		for ip := p0; ip < p1; ip++ {
 			i := ip * mr
