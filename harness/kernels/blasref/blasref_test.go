@@ -126,8 +126,9 @@ var benchShapes = [][3]int{
 // made every call pay for waking its side's threads, which at the demo
 // model's small shapes timed thread start-up more than arithmetic.
 // .ci/bench runs it with OPENBLAS_THREAD_TIMEOUT=24 (OpenBLAS's threads
-// poll about 2²⁴ cycles, a few milliseconds, after each call: warm through
-// a phase, asleep well within the next phase's warm-up).
+// then poll about 2²⁴ cycles, a few milliseconds, after each call: warm
+// through a phase, asleep well within the next phase's warm-up; the
+// variable's meaning is recalled from memory, not looked up).
 func BenchmarkGemmVsOpenBLAS(b *testing.B) {
 	SetThreads(threads)
 	if got := Threads(); got != threads {
