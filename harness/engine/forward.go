@@ -537,21 +537,20 @@ func (m *Model) attentionHooked(st *state, li int) {
 			}
 			scores = m.attendHead(a[i*hd:(i+1)*hd], q[i*hd:(i+1)*hd], s, li, hh, pos+1, scores)
 		}
-		switch {
-		case heads == nil:
+		if heads == nil {
 			m.scratch.Linear(y, a, 1, L.o, L.oB, m.threads)
-		case L.o.Panels != nil:
-			// A kept head's hd inputs are one contiguous stretch of
-			// every panel of o: streamed at the dense GEMV's speed.
+		} else {
 			one.idxO = headColumns(one.idxO, heads, hd)
-			m.scratch.LinearScatterInPanels(y, a[:nq*hd], L.o, L.oB, one.idxO, m.threads)
-		default:
-			o := L.o
-			if L.oT != nil {
-				o = L.oT
+			switch {
+			case L.o.Panels != nil:
+				// A kept head's hd inputs are one contiguous stretch of
+				// every panel of o: streamed at the dense GEMV's speed.
+				m.scratch.LinearScatterInPanels(y, a[:nq*hd], L.o, L.oB, one.idxO, m.threads)
+			case L.oT != nil:
+				m.scratch.LinearScatterInParallel(y, a[:nq*hd], L.oT, L.oB, one.idxO, m.threads)
+			default:
+				m.scratch.LinearScatterInParallel(y, a[:nq*hd], L.o, L.oB, one.idxO, m.threads)
 			}
-			one.idxO = headColumns(one.idxO, heads, hd)
-			m.scratch.LinearScatterInParallel(y, a[:nq*hd], o, L.oB, one.idxO, m.threads)
 		}
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)

@@ -66,8 +66,8 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 	// job (weights read in place need no packing at all).
 	var shared []float32
 	if split > 1 && !readsPanelsInPlace(w, 0) {
-		shared = sc.packedA(colJobs * ncJob * k)
-		defer sc.putPackedA(shared)
+		shared = sc.packedB(colJobs * ncJob * k)
+		defer sc.putPackedB(shared)
 		kBlocks := (k + kcBlock - 1) / kcBlock
 		runJobs(sc.team(), colJobs*kBlocks, min(workers, colJobs*kBlocks), func() func(int) {
 			conv := make([]float32, max(kcBlock, ncJob))

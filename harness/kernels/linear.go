@@ -36,7 +36,7 @@ func linear(s *Scratch, y, x []float32, m int, w *Mat, bias []float32, threads i
 	}
 	if m == 1 {
 		if w.Panels != nil {
-			gemvPanels(s.team(), y, x, w, bias, threads)
+			gemvPanels(s.team(), y, x, w, bias, nil, threads)
 		} else if w.Transposed {
 			gemvCols(s.team(), y, x, w, bias, threads)
 		} else {

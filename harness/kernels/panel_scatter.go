@@ -18,7 +18,8 @@ const msgScatterPanels = "kernels: LinearScatterInPanels: w has no panel copy (P
 // projection with heads skipped), where the input-major copy's rows, one
 // 2·Out-byte row per kept input, stream at about half that speed. For
 // inputs scattered one at a time (a sparse MLP's neurons) every run costs a
-// kernel call: use LinearScatterIn there. The outputs are split over up to
+// kernel call: use LinearScatterIn there. It is the panel GEMV
+// (gemvPanels) over the kept inputs: the outputs are split over up to
 // threads goroutines in jobs of whole panel groups, so the bits do not
 // depend on threads.
 func (s *Scratch) LinearScatterInPanels(y, h []float32, w *Mat, bias []float32, idx []int32, threads int) {
@@ -26,49 +27,7 @@ func (s *Scratch) LinearScatterInPanels(y, h []float32, w *Mat, bias []float32, 
 	if w.Panels == nil {
 		panic(msgScatterPanels)
 	}
-	np := panelCount(w.Out)
-	nJobs := (np + panelGroup - 1) / panelGroup
-	workers := workerCount(s.team(), threads, nJobs, len(idx)*w.Out)
-	if workers <= 1 {
-		for job := range nJobs {
-			panelRunsJob(y, h, w, bias, idx, job)
-		}
-		return
-	}
-	runJobs(s.team(), nJobs, workers, func() func(int) {
-		return func(job int) { panelRunsJob(y, h, w, bias, idx, job) }
-	})
-}
-
-// panelRunsJob computes LinearScatterInPanels's outputs of the panels
-// [job·panelGroup, (job+1)·panelGroup) that exist: the accumulators start
-// at zero, each run of consecutive idx entries advances them with one
-// panel-kernel call, and the sums (plus bias) are written out. A short last
-// group repeats its final panel, whose extra results are dropped.
-func panelRunsJob(y, h []float32, w *Mat, bias []float32, idx []int32, job int) {
-	np := panelCount(w.Out)
-	p0 := job * panelGroup
-	p1 := min(p0+panelGroup, np)
-	var list [panelGroup]int
-	for q := range list {
-		list[q] = min(p0+q, p1-1)
-	}
-	var acc [panelGroup * PanelRows]float32
-	for r := 0; r < len(idx); {
-		e := r + 1
-		for e < len(idx) && idx[e] == idx[e-1]+1 {
-			e++
-		}
-		panelDot4At(&acc, h[r:e], w, &list, int(idx[r]))
-		r = e
-	}
-	for q := range p1 - p0 {
-		j0 := (p0 + q) * PanelRows
-		n := min(PanelRows, w.Out-j0)
-		var b []float32
-		if bias != nil {
-			b = bias[j0 : j0+n]
-		}
-		putOutputs(y[j0:j0+n], acc[q*PanelRows:q*PanelRows+n], b)
-	}
+	// A nil idx (no input kept) reaches gemvPanels as "every input", but
+	// checkScatter has made h empty, so the sums are zero all the same.
+	gemvPanels(s.team(), y, h, w, bias, idx, threads)
 }

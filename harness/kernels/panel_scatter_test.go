@@ -103,6 +103,22 @@ func TestLinearScatterInPanelsPropagatesNaN(t *testing.T) {
 	}
 }
 
+// With no input kept (idx nil or empty) every output is its bias, as in
+// LinearScatterIn, not the product over all inputs.
+func TestLinearScatterInPanelsNoInputs(t *testing.T) {
+	r := newRand(23)
+	w, _ := testMat(r, kernels.F16, 40, 64, false)
+	w.Panels = kernels.PackPanels(w)
+	bias := randVec(r, 40)
+	for _, idx := range [][]int32{nil, {}} {
+		want, got := make([]float32, 40), make([]float32, 40)
+		kernels.LinearScatterIn(want, nil, w, bias, idx)
+		new(kernels.Scratch).LinearScatterInPanels(got, nil, w, bias, idx, 1)
+		require.Equal(t, bias, want)
+		require.Equal(t, want, got, "idx %#v", idx)
+	}
+}
+
 // A Mat without its panel copy is a programming error.
 func TestLinearScatterInPanelsNeedsPanels(t *testing.T) {
 	w, _ := testMat(newRand(3), kernels.F32, 16, 8, false)

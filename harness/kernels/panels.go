@@ -124,16 +124,18 @@ func panelDot4AtGo(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, pa
 // panelRows computes out[r] = bias[row] + Σ_k x[k]·W[row][k] for the rows
 // of the listed panels, panel list[g] giving out[PanelRows·g : …] (the
 // rows of the last panel that lie past w.Out are not written; out is cut
-// to the rows that exist). Panels go panelGroup at a time; a short last
-// group repeats its final panel, whose extra results are dropped.
-func panelRows(out, x []float32, w *Mat, bias []float32, list []int) {
+// to the rows that exist); with idx (LinearScatterInPanels), the sum runs
+// over the kept inputs only: Σ_r x[r]·W[row][idx[r]] (panelSums). Panels go
+// panelGroup at a time; a short last group repeats its final panel, whose
+// extra results are dropped.
+func panelRows(out, x []float32, w *Mat, bias []float32, idx []int32, list []int) {
 	var acc [panelGroup * PanelRows]float32
 	for g0 := 0; g0 < len(list); g0 += panelGroup {
 		var ps [panelGroup]int
 		for q := range ps {
 			ps[q] = list[min(g0+q, len(list)-1)]
 		}
-		panelDot4(&acc, x, w, &ps)
+		panelSums(&acc, x, w, &ps, idx)
 		for q := 0; q < panelGroup && g0+q < len(list); q++ {
 			// The rows of panel q that exist and fit out, as whole slices
 			// (one bounds check each, not one per row).
@@ -151,31 +153,57 @@ func panelRows(out, x []float32, w *Mat, bias []float32, list []int) {
 	}
 }
 
-// gemvPanels is the m == 1 Linear over w's panels: jobs of panelGroup
-// panels, each output computed by one job alone, so the bits do not depend
-// on threads.
-func gemvPanels(team *Team, y, x []float32, w *Mat, bias []float32, threads int) {
+// panelSums sets acc to the listed panels' sums over every input (idx
+// nil: panelDot4) or over the kept inputs idx, strictly ascending, x[r]
+// being input idx[r]'s value: each run of consecutive kept inputs is one
+// contiguous stretch of every panel, one panelDot4At call, the
+// accumulators carried from run to run, so the sums are the bits of
+// LinearScatterIn's ascending order.
+func panelSums(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int, idx []int32) {
+	if idx == nil {
+		panelDot4(acc, x, w, panels)
+		return
+	}
+	*acc = [panelGroup * PanelRows]float32{}
+	for r := 0; r < len(idx); {
+		e := r + 1
+		for e < len(idx) && idx[e] == idx[e-1]+1 {
+			e++
+		}
+		panelDot4At(acc, x[r:e], w, panels, int(idx[r]))
+		r = e
+	}
+}
+
+// gemvPanels is the m == 1 Linear over w's panels (over the kept inputs
+// idx only, when idx is not nil): jobs of panelGroup panels, each output
+// computed by one job alone, so the bits do not depend on threads.
+func gemvPanels(team *Team, y, x []float32, w *Mat, bias []float32, idx []int32, threads int) {
 	np := panelCount(w.Out)
 	nJobs := (np + panelGroup - 1) / panelGroup
-	workers := workerCount(team, threads, nJobs, w.Out*w.In)
+	work := w.Out * w.In
+	if idx != nil {
+		work = w.Out * len(idx)
+	}
+	workers := workerCount(team, threads, nJobs, work)
 	if workers <= 1 {
 		// In the calling goroutine, without the closures runJobs takes
 		// (they escape, and a predictor scores every token this way).
 		var list [panelGroup]int
 		for job := range nJobs {
-			panelJob(y, x, w, bias, job, &list)
+			panelJob(y, x, w, bias, idx, job, &list)
 		}
 		return
 	}
 	runJobs(team, nJobs, workers, func() func(int) {
 		var list [panelGroup]int
-		return func(job int) { panelJob(y, x, w, bias, job, &list) }
+		return func(job int) { panelJob(y, x, w, bias, idx, job, &list) }
 	})
 }
 
 // panelJob computes gemvPanels's job: the outputs of panels
 // [job·panelGroup, (job+1)·panelGroup) that exist. list is scratch.
-func panelJob(y, x []float32, w *Mat, bias []float32, job int, list *[panelGroup]int) {
+func panelJob(y, x []float32, w *Mat, bias []float32, idx []int32, job int, list *[panelGroup]int) {
 	np := panelCount(w.Out)
 	p0 := job * panelGroup
 	p1 := min(p0+panelGroup, np)
@@ -183,7 +211,7 @@ func panelJob(y, x []float32, w *Mat, bias []float32, job int, list *[panelGroup
 		list[q-p0] = q
 	}
 	j0 := p0 * PanelRows
-	panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, list[:p1-p0])
+	panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, idx, list[:p1-p0])
 }
 
 // putOutputs writes a panel's sums src to dst, each plus its bias when

@@ -18,6 +18,7 @@ type Scratch struct {
 
 	gemm sync.Pool // of *gemmScratch
 	a    sync.Pool // of *[]float32: packed x, shared by a call's workers
+	b    sync.Pool // of *[]float32: packed B, shared by a call's workers
 }
 
 // Linear is the package-level Linear, taking its packing buffers from s.
@@ -47,12 +48,10 @@ func (s *Scratch) get() *gemmScratch {
 // packedA returns a buffer of n floats for a call's packed x, from s when
 // it holds one large enough (its contents are overwritten before use).
 func (s *Scratch) packedA(n int) []float32 {
-	if s != nil {
-		if b, ok := s.a.Get().(*[]float32); ok && cap(*b) >= n {
-			return (*b)[:n]
-		}
+	if s == nil {
+		return make([]float32, n)
 	}
-	return make([]float32, n)
+	return pooledFloats(&s.a, n)
 }
 
 // putPackedA hands a packed-x buffer back to s (a no-op when s is nil).
@@ -60,6 +59,32 @@ func (s *Scratch) putPackedA(b []float32) {
 	if s != nil {
 		s.a.Put(&b)
 	}
+}
+
+// packedB is packedA for a call's shared packed B. It has a pool of its
+// own: sharing x's, a call asking for both would get back the other's
+// buffer, too small half the time, and allocate afresh on every call.
+func (s *Scratch) packedB(n int) []float32 {
+	if s == nil {
+		return make([]float32, n)
+	}
+	return pooledFloats(&s.b, n)
+}
+
+// putPackedB hands a packed-B buffer back to s (a no-op when s is nil).
+func (s *Scratch) putPackedB(b []float32) {
+	if s != nil {
+		s.b.Put(&b)
+	}
+}
+
+// pooledFloats returns a buffer of n floats from p when it holds one large
+// enough, a fresh one otherwise.
+func pooledFloats(p *sync.Pool, n int) []float32 {
+	if b, ok := p.Get().(*[]float32); ok && cap(*b) >= n {
+		return (*b)[:n]
+	}
+	return make([]float32, n)
 }
 
 // put hands buffer sets back to s (a no-op when s is nil).
