@@ -27,11 +27,16 @@ func main() {
 	vocab := flag.Int("vocab", 2048, "tokenizer vocabulary size")
 	out := flag.String("out", "", "training workspace to write (required)")
 	data := flag.String("data", "suites/demo/data", "directory for the committed held-out data")
+	sizes := gen.DefaultSizes()
+	flag.IntVar(&sizes.DrillDocs, "drills", sizes.DrillDocs, "retrieval drill documents to write (drill.u16); drawn last, so no other split changes")
 	flag.Parse()
 	if *out == "" {
 		log.Fatal("--out DIR is required")
 	}
-	d, err := gen.Generate(*seed, gen.DefaultSizes())
+	if sizes.DrillDocs < 1 {
+		log.Fatalf("--drills %d: give at least 1", sizes.DrillDocs)
+	}
+	d, err := gen.Generate(*seed, sizes)
 	if err != nil {
 		log.Fatal(err)
 	}

@@ -180,6 +180,11 @@ class Schedule(unittest.TestCase):
         self.assertAlmostEqual(train.lr_at(59.5, steps, lr, warmup), 0.55)  # cosine midpoint
         self.assertAlmostEqual(train.lr_at(109, steps, lr, warmup), 0.1)
 
+    def test_constant_after_warmup(self):
+        self.assertAlmostEqual(train.lr_at(0, 110, 1.0, 10, "constant"), 0.1)
+        self.assertAlmostEqual(train.lr_at(60, 110, 1.0, 10, "constant"), 1.0)
+        self.assertAlmostEqual(train.lr_at(109, 110, 1.0, 10, "constant"), 1.0)
+
     def test_no_decay_on_biases_norms_embeddings(self):
         model = train.OPTDecoder(16, 8, 1, 2, 16, 8, seed=0)
         decay, plain = train.param_groups(model, 0.1)
@@ -293,41 +298,65 @@ def layer0_attention(model, ids):
 
 
 class PrevHead(unittest.TestCase):
-    """--prev-head builds a previous-token head into layer 0, head 0: frozen
-    sinusoidal position rows and held query/key rows (the model card's
+    """--prev-head builds fixed-lag heads into layer 0: frozen sinusoidal
+    position rows, held query/key rows and held inputs (the model card's
     copying recipe search)."""
 
-    def test_head_attends_to_the_previous_token_and_is_held(self):
+    def test_heads_attend_at_their_lags_and_are_held(self):
         with tempfile.TemporaryDirectory() as d:
             train_path, valid_path = write_stream(d)
             args = ["--train", train_path, "--valid", valid_path, "--out", os.path.join(d, "p")] + TINY
-            args += ["--hidden", "64", "--heads", "2", "--prev-head", "3", "--weight-decay", "0"]
-            model = train.OPTDecoder(VOCAB, 64, 2, 2, 64, 64, seed=3)
-            held, rows = train.prev_token_init(model, 3.0, 0.06)
-            self.assertEqual(rows, 32)
-            ids = torch.tensor(np.fromfile(valid_path, dtype="<u2")[:40].astype(np.int64))
+            # weight decay on: the held entries must be written back after every step
+            args += ["--hidden", "96", "--heads", "3", "--prev-head", "2.5", "--prev-head-pos-amp", "0.5",
+                     "--prev-head-lags", "1,2", "--embed-std", "0.1"]
+            model = train.OPTDecoder(VOCAB, 96, 2, 3, 64, 64, seed=3, embed_std=0.1)
+            held = train.prev_token_init(model, 2.5, 0.5, (1, 2))
+            ids = torch.tensor(np.fromfile(valid_path, dtype="<u2")[:60].astype(np.int64))
+
+            def at_lag(att, head, lag):
+                return torch.stack([att[head, i, i - lag] for i in range(lag, len(ids))])
+
             with torch.no_grad():
                 att = layer0_attention(model, ids)
-            prev = torch.stack([att[0, i, i - 1] for i in range(1, len(ids))])
-            self.assertGreater(float(prev.min()), 0.9, "head 0 at initialisation")
-            other = torch.stack([att[1, i, i - 1] for i in range(1, len(ids))])
-            self.assertLess(float(other.mean()), 0.5, "head 1 is left as initialised")
-            q_init = held[0].detach()[:rows].clone()
+            self.assertGreater(float(at_lag(att, 0, 1).min()), 0.9, "head 0 at initialisation")
+            self.assertGreater(float(at_lag(att, 1, 2).min()), 0.9, "head 1 at initialisation")
+            self.assertLess(float(at_lag(att, 2, 1).mean()), 0.5, "head 2 is left as initialised")
+            dec0 = model.model.decoder
+            self.assertEqual(float(dec0.embed_tokens.weight[:, :32].abs().max()), 0.0, "positions only in head width")
+            before = [v.clone() for _, _, v in held]
             with contextlib.redirect_stderr(io.StringIO()):
                 trained, log = train.run(train.parse_args(args))
-            self.assertEqual(log["args"]["prev_head"], 3.0)
+            self.assertEqual(log["args"]["prev_head_lags"], "1,2")
             dec = trained.model.decoder
-            # Without weight decay the held rows and the frozen positions keep
-            # their initial values exactly; the rest of the layer trained.
-            a = dec.layers[0].self_attn
-            torch.testing.assert_close(a.q_proj.weight.detach()[:rows], q_init, rtol=0, atol=0)
-            torch.testing.assert_close(dec.embed_positions.weight.detach(), model.model.decoder.embed_positions.weight.detach(),
+            by_name = dict(trained.named_parameters())
+            names = {id(p): n for n, p in model.named_parameters()}
+            for (p, idx, _), value in zip(held, before):
+                torch.testing.assert_close(by_name[names[id(p)]].detach()[idx], value, rtol=0, atol=0,
+                                           msg=f"{names[id(p)]} held")
+            torch.testing.assert_close(dec.embed_positions.weight.detach(), dec0.embed_positions.weight.detach(),
                                        rtol=0, atol=0)
-            self.assertFalse(torch.equal(a.q_proj.weight.detach()[rows:], model.model.decoder.layers[0].self_attn.q_proj.weight.detach()[rows:]))
+            a = dec.layers[0].self_attn
+            self.assertFalse(torch.equal(a.q_proj.weight.detach()[64:], dec0.layers[0].self_attn.q_proj.weight.detach()[64:]),
+                             "the free head trained")
+            self.assertFalse(torch.equal(dec.embed_tokens.weight.detach()[:, 32:], dec0.embed_tokens.weight.detach()[:, 32:]),
+                             "the rest of the embedding trained")
             with torch.no_grad():
                 att = layer0_attention(trained, ids)
-            prev = torch.stack([att[0, i, i - 1] for i in range(1, len(ids))])
-            self.assertGreater(float(prev.mean()), 0.8, "head 0 after training")
+            self.assertGreater(float(at_lag(att, 0, 1).mean()), 0.9, "head 0 after training")
+            self.assertGreater(float(at_lag(att, 1, 2).mean()), 0.9, "head 1 after training")
+
+    def test_positions_do_not_repeat_within_the_window(self):
+        # The geometric frequencies keep every position's row far from every
+        # other's over 512 positions (measured: at most 0.51 of a row's own
+        # score), so a built head's score peaks at its lag alone; harmonic
+        # frequencies (the first version) repeated exactly every 64 positions.
+        model = train.OPTDecoder(VOCAB, 64, 1, 2, 16, 512, seed=0)
+        train.prev_token_init(model, 1.0, 1.0, (1,))
+        p = model.model.decoder.embed_positions.weight.detach()[2:, :32].double()
+        gram = p @ p.T
+        own = gram.diagonal().clone()
+        gram.fill_diagonal_(float("-inf"))
+        self.assertLess(float((gram.max(dim=1).values / own).max()), 0.6)
 
     def test_bad_prev_head_arguments(self):
         with tempfile.TemporaryDirectory() as d:
@@ -335,12 +364,64 @@ class PrevHead(unittest.TestCase):
             base = ["--train", train_path, "--valid", valid_path, "--out", os.path.join(d, "o")] + TINY
             for extra, msg in ((["--prev-head", "-1"], "must not be negative"),
                                (["--prev-head", "1", "--prev-head-pos-amp", "0"], "must be positive"),
-                               (["--prev-head", "1", "--hidden", "30", "--heads", "2"], "even head width")):
+                               (["--prev-head", "1", "--hidden", "30", "--heads", "2"], "even head width"),
+                               (["--prev-head", "1", "--prev-head-lags", "1,2,3"], "give 1 to 2 lags"),
+                               (["--prev-head", "1", "--prev-head-lags", "0"], "each at least 1"),
+                               (["--prev-head", "1", "--prev-head-lags", "one"], "comma-separated integers")):
                 err = io.StringIO()
                 with contextlib.redirect_stderr(err):
                     rc = train.main(base + extra)
                 self.assertEqual(rc, 2, err.getvalue())
                 self.assertIn(msg, err.getvalue())
+
+
+
+
+class Resume(unittest.TestCase):
+    """--state saves the run at every eval; a later run with a larger --steps
+    goes on from there and ends with the bytes one uninterrupted run writes."""
+
+    def test_resumed_run_matches_one_run(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            base = ["--train", train_path, "--valid", valid_path, "--schedule", "constant"] + TINY
+            whole = base + ["--out", os.path.join(d, "whole")]
+            state = os.path.join(d, "state.pt")
+            part = base + ["--out", os.path.join(d, "part"), "--state", state]
+            with contextlib.redirect_stderr(io.StringIO()):
+                _, log_whole = train.run(train.parse_args(whole))
+                train.run(train.parse_args([a if a != "60" else "40" for a in part]))
+                err = io.StringIO()
+                with contextlib.redirect_stderr(err):
+                    _, log_part = train.run(train.parse_args(part))
+            self.assertIn("resuming", err.getvalue())
+            with open(os.path.join(d, "whole", "model.safetensors"), "rb") as f:
+                a = f.read()
+            with open(os.path.join(d, "part", "model.safetensors"), "rb") as f:
+                b = f.read()
+            self.assertEqual(a, b)
+            self.assertEqual([e["valid_loss"] for e in log_whole["evals"]], [e["valid_loss"] for e in log_part["evals"]])
+
+    def test_changed_arguments_are_refused(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            state = os.path.join(d, "state.pt")
+            base = ["--train", train_path, "--valid", valid_path, "--out", os.path.join(d, "o"),
+                    "--state", state] + TINY
+            with contextlib.redirect_stderr(io.StringIO()):
+                train.run(train.parse_args([a if a != "60" else "20" for a in base]))
+            err = io.StringIO()
+            with contextlib.redirect_stderr(err):
+                rc = train.main(base + ["--lr", "0.01"])
+            self.assertEqual(rc, 2)
+            self.assertIn("different arguments (lr", err.getvalue())
+            with open(state, "wb") as f:
+                f.write(b"not a state")
+            err = io.StringIO()
+            with contextlib.redirect_stderr(err):
+                rc = train.main(base)
+            self.assertEqual(rc, 2)
+            self.assertIn("cannot read the saved state", err.getvalue())
 
 
 if __name__ == "__main__":

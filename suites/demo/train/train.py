@@ -13,6 +13,7 @@ reported on stderr and the script exits with status 2.
 
 import argparse
 import ctypes
+import io
 import json
 import math
 import os
@@ -177,47 +178,76 @@ class OPTDecoder(nn.Module):
         return logits
 
 
-def prev_token_init(model, gain, amp):
-    """prev_token_init builds a previous-token head into layer 0, head 0, and
-    returns the parameters (and their row count) whose gradient must be held
-    at zero for it to stay.
+def prev_token_init(model, gain, amp, lags=(1,)):
+    """prev_token_init builds fixed-lag heads into layer 0 and returns what
+    must be held for them to stay: a list of (parameter, index, value), each
+    to be zeroed in the gradient and written back after every step.
 
-    The position table becomes amp·(cos, sin) pairs of the position at
-    angular frequencies pi·(k + 1/2)/(hd/2) in dimensions 0 … hd-1 (hd the
-    head width; OPT's offset of 2 kept: row p+2 is position p), zero
-    elsewhere, and is frozen; head 0's key rows are gain·I and its query rows
-    gain·R on those dimensions (R turns each pair one position back), zero
-    elsewhere, so from the first step the head attends to the previous
-    token. Training alone does not form such a head in layer 0 here: a
-    one-layer shortcut takes the layer first (the model card's copying
-    recipe search)."""
+    The position table becomes amp·(cos, sin) pairs of the position in
+    dimensions 0 … hd-1 (hd the head width; OPT's offset of 2 kept: row p+2
+    is position p), zero elsewhere, and is frozen. The angular frequencies
+    run geometrically from pi down to pi/16, so no two positions within the
+    training window look alike (harmonic frequencies repeat every few dozen
+    positions). Head i of layer 0 (one per entry of lags) gets key rows
+    gain·I and query rows gain·R^lag on those dimensions, zero elsewhere,
+    where R turns each pair one position back, so from the first step it
+    attends to the token lag positions back. What the heads read is held
+    too: the token embedding's first hd columns stay zero and layer 0's
+    first LayerNorm keeps weight 1 and bias 0 there, so those dimensions
+    carry positions only (trained token embeddings would otherwise outgrow
+    the position rows and blur the heads). Training alone does not form
+    such heads in layer 0 here: a one-layer shortcut takes the layer first
+    (the model card's copying recipe search)."""
     dec = model.model.decoder
     hd = model.hidden // model.heads
     if hd % 2:
         raise TrainError(f"--prev-head needs an even head width; --hidden {model.hidden} / --heads {model.heads} "
                          f"is {hd}")
+    if not lags or len(lags) > model.heads or any(lag < 1 for lag in lags):
+        raise TrainError(f"--prev-head-lags {','.join(map(str, lags))}: give 1 to {model.heads} lags (one per "
+                         "built head), each at least 1")
     nf = hd // 2
-    omega = math.pi * (torch.arange(nf, dtype=torch.float64) + 0.5) / nf
+    omega = math.pi * (1.0 / 16.0) ** (torch.arange(nf, dtype=torch.float64) / max(nf - 1, 1))
     pos = torch.arange(dec.embed_positions.weight.shape[0], dtype=torch.float64)[:, None] - POS_OFFSET
     table = torch.zeros(dec.embed_positions.weight.shape, dtype=torch.float64)
     table[:, 0:hd:2] = amp * torch.cos(pos * omega)
     table[:, 1:hd:2] = amp * torch.sin(pos * omega)
-    rot = torch.zeros(hd, hd, dtype=torch.float64)
-    for k in range(nf):
-        c, s = math.cos(float(omega[k])), math.sin(float(omega[k]))
-        rot[2 * k, 2 * k], rot[2 * k, 2 * k + 1] = c, s
-        rot[2 * k + 1, 2 * k], rot[2 * k + 1, 2 * k + 1] = -s, c
+
+    def rotation(lag):
+        rot = torch.zeros(hd, hd, dtype=torch.float64)
+        for k in range(nf):
+            c, s = math.cos(lag * float(omega[k])), math.sin(lag * float(omega[k]))
+            rot[2 * k, 2 * k], rot[2 * k, 2 * k + 1] = c, s
+            rot[2 * k + 1, 2 * k], rot[2 * k + 1, 2 * k + 1] = -s, c
+        return rot
+
     a = dec.layers[0].self_attn
+    ln = dec.layers[0].self_attn_layer_norm
+    held = []
     with torch.no_grad():
         dec.embed_positions.weight.copy_(table.float())
-        a.q_proj.weight[:hd].zero_()
-        a.k_proj.weight[:hd].zero_()
-        a.q_proj.weight[:hd, :hd] = (gain * rot).float()
-        a.k_proj.weight[:hd, :hd] = (gain * torch.eye(hd, dtype=torch.float64)).float()
-        a.q_proj.bias[:hd].zero_()
-        a.k_proj.bias[:hd].zero_()
+        dec.embed_tokens.weight[:, :hd] = 0
+        ln.weight[:hd], ln.bias[:hd] = 1, 0
+        held += [(dec.embed_tokens.weight, (slice(None), slice(0, hd))), (ln.weight, slice(0, hd)),
+                 (ln.bias, slice(0, hd))]
+        for h, lag in enumerate(lags):
+            rows = slice(h * hd, (h + 1) * hd)
+            for w in (a.q_proj.weight, a.k_proj.weight, a.q_proj.bias, a.k_proj.bias):
+                w[rows] = 0
+            a.q_proj.weight[rows, :hd] = (gain * rotation(lag)).float()
+            a.k_proj.weight[rows, :hd] = (gain * torch.eye(hd, dtype=torch.float64)).float()
+            held += [(w, rows) for w in (a.q_proj.weight, a.k_proj.weight, a.q_proj.bias, a.k_proj.bias)]
     dec.embed_positions.weight.requires_grad_(False)
-    return [a.q_proj.weight, a.k_proj.weight, a.q_proj.bias, a.k_proj.bias], hd
+    return [(p, idx, p.detach()[idx].clone()) for p, idx in held]
+
+
+def parse_lags(text):
+    """parse_lags reads --prev-head-lags, a comma-separated list of positive integers."""
+    try:
+        lags = tuple(int(v) for v in text.split(","))
+    except ValueError:
+        raise TrainError(f"--prev-head-lags {text!r}: expected comma-separated integers such as 1,2") from None
+    return lags
 
 
 def param_groups(model, weight_decay):
@@ -232,11 +262,14 @@ def param_groups(model, weight_decay):
     return [{"params": decay, "weight_decay": weight_decay}, {"params": plain, "weight_decay": 0.0}]
 
 
-def lr_at(step, steps, lr, warmup):
+def lr_at(step, steps, lr, warmup, schedule="cosine"):
     """lr_at is the rate for 0-based step: linear warmup to lr over warmup steps,
-    then cosine decay to 0.1 * lr at the last step."""
+    then cosine decay to 0.1 * lr at the last step, or (schedule "constant")
+    lr from there on."""
     if step < warmup:
         return lr * (step + 1) / warmup
+    if schedule == "constant":
+        return lr
     span = max(steps - 1 - warmup, 1)
     progress = min((step - warmup) / span, 1.0)
     return lr * (0.1 + 0.9 * 0.5 * (1.0 + math.cos(math.pi * progress)))
@@ -412,6 +445,38 @@ def eval_line(e):
             + "".join(f" {k} {v:.3f}" for k, v in sorted((e.get("dev_acc") or {}).items())))
 
 
+STATE_FORMAT = 1
+# Arguments a resumed run may change: where it logs and saves, and how far it goes.
+RESUMABLE_CHANGES = {"steps", "log", "state", "out"}
+
+
+def resume(args, model, opt, rng):
+    """resume loads --state into the model, the optimiser and the data generator
+    and returns (next step, evals, best, elapsed seconds). The saved run's
+    arguments must match this one's except RESUMABLE_CHANGES; with the
+    constant schedule and a constant drill share, going on to a larger
+    --steps gives the same weights as one run of that length."""
+    try:
+        st = torch.load(args.state)
+    except Exception as e:  # torch raises many kinds for a damaged file
+        raise TrainError(f"{args.state} (--state): cannot read the saved state: {e}; delete it to start afresh") from e
+    if not isinstance(st, dict) or st.get("format") != STATE_FORMAT:
+        raise TrainError(f"{args.state} (--state): not a training state of format {STATE_FORMAT}; "
+                         "delete it to start afresh")
+    now = vars(args)
+    diff = sorted(k for k in set(now) | set(st["args"]) if k not in RESUMABLE_CHANGES and now.get(k) != st["args"].get(k))
+    if diff:
+        raise TrainError(f"{args.state} (--state): saved with different arguments ({', '.join(diff)}: "
+                         f"{[st['args'].get(k) for k in diff]} then, {[now.get(k) for k in diff]} now); "
+                         "pass the same ones or delete the state")
+    if st["step"] > args.steps:
+        raise TrainError(f"{args.state} (--state): saved at step {st['step']}, past --steps {args.steps}")
+    model.load_state_dict(st["model"])
+    opt.load_state_dict(st["opt"])
+    rng.bit_generator.state = st["rng"]
+    return st["step"], st["evals"], st["best"], st["elapsed_s"]
+
+
 def run(args):
     """run trains, writes DIR's three files, and returns (model with the best weights, log)."""
     torch.set_num_threads(args.threads)
@@ -436,7 +501,8 @@ def run(args):
                        embed_std=args.embed_std)
     if args.prev_head < 0 or args.prev_head_pos_amp <= 0:
         raise TrainError("--prev-head must not be negative and --prev-head-pos-amp must be positive")
-    held, held_rows = prev_token_init(model, args.prev_head, args.prev_head_pos_amp) if args.prev_head > 0 else ([], 0)
+    lags = parse_lags(args.prev_head_lags)
+    held = prev_token_init(model, args.prev_head, args.prev_head_pos_amp, lags) if args.prev_head > 0 else []
     opt = torch.optim.AdamW(param_groups(model, args.weight_decay), lr=args.lr, betas=(0.9, 0.95), eps=1e-8)
     starts_valid = validation_windows(valid, args.seq, args.eval_windows)
     n_params = sum(p.numel() for p in model.parameters())
@@ -444,6 +510,21 @@ def run(args):
     t0 = time.monotonic()
     evals, best = [], None
     sums = {"ce": 0.0, "l1": 0.0, "n": 0, "train_s": 0.0}
+    first = 0
+    if args.state and os.path.exists(args.state):
+        first, evals, best, elapsed = resume(args, model, opt, rng)
+        t0 -= elapsed
+        print(f"train: resuming {args.state} at step {first}", file=sys.stderr, flush=True)
+
+    def save_state(step):
+        """save_state writes everything a later run needs to continue exactly after step."""
+        if not args.state:
+            return
+        buf = io.BytesIO()
+        torch.save({"format": STATE_FORMAT, "args": vars(args), "step": step, "model": model.state_dict(),
+                    "opt": opt.state_dict(), "rng": rng.bit_generator.state, "evals": evals, "best": best,
+                    "elapsed_s": time.monotonic() - t0}, buf)
+        write_atomic(args.state, buf.getvalue())
 
     def do_eval(step, lr_now):
         nonlocal best
@@ -468,10 +549,11 @@ def run(args):
             best = (step, vloss, {k: v.detach().clone() for k, v in model.state_dict().items()})
         sums.update(ce=0.0, l1=0.0, n=0, train_s=0.0)
 
-    do_eval(0, lr_at(0, args.steps, args.lr, args.warmup))
-    for step in range(args.steps):
+    if first == 0:
+        do_eval(0, lr_at(0, args.steps, args.lr, args.warmup, args.schedule))
+    for step in range(first, args.steps):
         ts = time.monotonic()
-        lr_now = lr_at(step, args.steps, args.lr, args.warmup)
+        lr_now = lr_at(step, args.steps, args.lr, args.warmup, args.schedule)
         for g in opt.param_groups:
             g["lr"] = lr_now
         w = windows(train, rng.integers(0, len(train) - args.seq, size=args.batch), args.seq)
@@ -491,16 +573,20 @@ def run(args):
         loss = ce if act_mean is None else ce + args.act_l1 * act_mean
         opt.zero_grad(set_to_none=True)
         loss.backward()
-        for p in held:  # --prev-head: the built head's query and key rows take no gradient step
-            p.grad[:held_rows] = 0
+        for p, idx, _ in held:  # --prev-head: the built heads and what they read take no gradient step
+            p.grad[idx] = 0
         torch.nn.utils.clip_grad_norm_(model.parameters(), 1.0)  # frozen parameters have no gradient
         opt.step()
+        with torch.no_grad():
+            for p, idx, value in held:  # undo decoupled weight decay on the held entries
+                p[idx] = value
         sums["ce"] += float(ce)
         sums["l1"] += 0.0 if act_mean is None else args.act_l1 * float(act_mean)
         sums["n"] += 1
         sums["train_s"] += time.monotonic() - ts
         if (step + 1) % args.eval_every == 0 or step + 1 == args.steps:
             do_eval(step + 1, lr_now)
+            save_state(step + 1)
 
     model.load_state_dict(best[2])
     names = [n for n, _ in model.named_parameters()]
@@ -532,6 +618,10 @@ def parse_args(argv=None):
     ap.add_argument("--steps", type=int, required=True, help="optimiser steps")
     ap.add_argument("--lr", type=float, default=3e-3, help="peak learning rate")
     ap.add_argument("--warmup", type=int, default=200, help="linear warmup steps")
+    ap.add_argument("--schedule", choices=("cosine", "constant"), default="cosine",
+                    help="after the warmup: cosine decay to a tenth of --lr at the last step, or constant")
+    ap.add_argument("--state", help="save a resumable training state here at every eval, and resume from it "
+                                    "when it exists")
     ap.add_argument("--weight-decay", type=float, default=0.1)
     ap.add_argument("--embed-std", type=float, default=0.02, help="standard deviation of the token and position embeddings at initialisation")
     ap.add_argument("--act-l1", type=float, default=0.0, help="weight of the mean post-ReLU activation in the loss")
@@ -552,10 +642,12 @@ def parse_args(argv=None):
     ap.add_argument("--dev", help="dev probes (mkdata's dev.json): log 4-shot accuracy per family at each eval")
     ap.add_argument("--dev-items", type=int, default=40, help="dev probes scored per family at each eval")
     ap.add_argument("--prev-head", type=float, default=0.0,
-                    help="build a previous-token head into layer 0, head 0, with this gain (0: off): sinusoidal, "
-                         "frozen position rows and held query/key rows; see prev_token_init")
+                    help="build fixed-lag heads into layer 0 with this gain (0: off): sinusoidal, frozen position "
+                         "rows, held query/key rows and held inputs; see prev_token_init")
     ap.add_argument("--prev-head-pos-amp", type=float, default=0.06,
                     help="amplitude of the position rows --prev-head writes")
+    ap.add_argument("--prev-head-lags", default="1",
+                    help="with --prev-head: comma-separated lags, one built head of layer 0 per lag (1: previous token)")
     return ap.parse_args(argv)
 
 
