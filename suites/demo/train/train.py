@@ -446,16 +446,19 @@ def eval_line(e):
 
 
 STATE_FORMAT = 1
-# Arguments a resumed run may change: where it logs and saves, and how far it goes.
-RESUMABLE_CHANGES = {"steps", "log", "state", "out"}
+# Arguments a resumed run may change: where it logs and saves, how far it
+# goes, and the drill share from here on (a curriculum in phases).
+RESUMABLE_CHANGES = {"steps", "log", "state", "out", "drill_mix_start", "drill_mix_end"}
 
 
 def resume(args, model, opt, rng):
     """resume loads --state into the model, the optimiser and the data generator
     and returns (next step, evals, best, elapsed seconds). The saved run's
     arguments must match this one's except RESUMABLE_CHANGES; with the
-    constant schedule and a constant drill share, going on to a larger
-    --steps gives the same weights as one run of that length."""
+    constant schedule and the same constant drill share, going on to a
+    larger --steps gives the same weights as one run of that length. A
+    different drill share makes a new phase of the curriculum: the same
+    phases in the same order give the same weights."""
     try:
         st = torch.load(args.state)
     except Exception as e:  # torch raises many kinds for a damaged file
