@@ -21,8 +21,9 @@ const (
 	demoDataSrc  = "../../suites/demo/data"
 )
 
-// demoLayers is the demo model's layer count (its config.json).
-const demoLayers = 4
+// demoLayers is the demo model's layer count (its config.json;
+// TestDemoLayersMatchConfig checks it).
+const demoLayers = 6
 
 // abs returns the absolute form of a path, failing the test on error.
 func abs(t testing.TB, p string) string {

@@ -39,7 +39,7 @@ example:
 `
 
 // brokenLayer is the layer whose MLP budget the demo cuts.
-const brokenLayer = 2
+const brokenLayer = 5
 
 func runDemo(c *cli, args []string) error {
 	fs := newFlags(c, "demo", demoUsage)

@@ -131,7 +131,7 @@ func manifestCase(rule, hash, predictors string) func(t *testing.T, f *relFixtur
 			hash = f.hash
 		}
 		layers := []string{fmt.Sprintf(`{"layer":0,"mlp":%s,"attention":{"mode":"dense"}}`, rule)}
-		for l := 1; l < 4; l++ {
+		for l := 1; l < relDemoLayers; l++ {
 			layers = append(layers, fmt.Sprintf(`{"layer":%d,"mlp":{"mode":"dense"},"attention":{"mode":"dense"}}`, l))
 		}
 		if err := writeRawManifest(filepath.Join(dir, "build"), f.model, hash, predictors, strings.Join(layers, ",\n")); err != nil {

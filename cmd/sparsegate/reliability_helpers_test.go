@@ -9,6 +9,7 @@ import (
 	"bytes"
 	"crypto/sha256"
 	"encoding/hex"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io/fs"
@@ -26,6 +27,10 @@ import (
 
 // relDemoModel is the demo model in the source tree, relative to this package.
 const relDemoModel = "../../suites/demo/model"
+
+// relDemoLayers is the demo model's layer count (its config.json;
+// TestRelDemoLayersMatchConfig checks it).
+const relDemoLayers = 6
 
 // relSuiteYAML is the fixture suite: a perplexity probe on 1500 bytes and an
 // 8-item few-shot choice probe, so a run takes well under a second.
@@ -202,11 +207,11 @@ func writeSuiteDir(dir, yaml string) error {
 	return os.WriteFile(filepath.Join(dir, "suite.yaml"), []byte(yaml), 0o644)
 }
 
-// writeManifest writes a sparse build of the 4-layer demo model with oracle
+// writeManifest writes a sparse build of the demo model with oracle
 // rules (mlpK neurons, headK heads in every layer).
 func writeManifest(dir, base, hash string, mlpK, headK int) error {
 	var layers []string
-	for l := 0; l < 4; l++ {
+	for l := range relDemoLayers {
 		layers = append(layers, fmt.Sprintf(`{"layer":%d,"mlp":{"mode":"oracle","k":%d},"attention":{"mode":"oracle","k":%d}}`, l, mlpK, headK))
 	}
 	return writeRawManifest(dir, base, hash, "", strings.Join(layers, ",\n"))
@@ -417,3 +422,21 @@ func readBytes(t *testing.T, path string) []byte {
 
 // waitTimeout is how long a child may take before a test gives up on it.
 const waitTimeout = 60 * time.Second
+
+// The reliability fixtures' manifests list relDemoLayers layers; a
+// retrained demo model with another depth must change the constant with it.
+func TestRelDemoLayersMatchConfig(t *testing.T) {
+	raw, err := os.ReadFile(filepath.Join(relDemoModel, "config.json"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	var cfg struct {
+		Layers int `json:"num_hidden_layers"`
+	}
+	if err := json.Unmarshal(raw, &cfg); err != nil {
+		t.Fatal(err)
+	}
+	if cfg.Layers != relDemoLayers {
+		t.Fatalf("demo config.json has %d layers, relDemoLayers is %d", cfg.Layers, relDemoLayers)
+	}
+}

@@ -166,16 +166,15 @@ func fewShotAccuracy(t *testing.T, m *engine.Model, family string, k, limit int)
 	return float64(correct) / float64(len(items))
 }
 
-// openTargets reports whether to assert the demo model's targets it does not
-// reach yet (mean residual cosine ≥ 0.8; 4-shot accuracy ≥ 0.75 on four
-// families including in-context retrieval): the shipped model misses them, as
-// its model card says, so CI checks only what it reaches and
-// SPARSEGATE_DEMO_OPEN_TARGETS=1 checks the rest.
+// openTargets reports whether to assert the demo model's target it does not
+// reach yet (4-shot accuracy >= 0.75 on four families): the shipped model
+// reaches it on three (lookup, next, status), as its model card says, so CI
+// checks what it reaches and SPARSEGATE_DEMO_OPEN_TARGETS=1 checks the rest.
 func openTargets(t *testing.T) bool {
 	if os.Getenv("SPARSEGATE_DEMO_OPEN_TARGETS") == "1" {
 		return true
 	}
-	t.Log("not asserting the open targets (residual cosine, in-context few-shot accuracy); set SPARSEGATE_DEMO_OPEN_TARGETS=1")
+	t.Log("not asserting the open target (four families at 0.75); set SPARSEGATE_DEMO_OPEN_TARGETS=1")
 	return false
 }
 
@@ -214,9 +213,7 @@ func TestQuality(t *testing.T) {
 	cos /= float64(m.Config.Layers - 1)
 	t.Logf("mean ReLU zero fraction %.3f; mean residual cosine %.3f", zeroFrac, cos)
 	require.GreaterOrEqual(t, zeroFrac, 0.80)
-	if openTargets(t) {
-		assert.GreaterOrEqual(t, cos, 0.80)
-	}
+	require.GreaterOrEqual(t, cos, 0.80)
 
 	for _, c := range []struct {
 		mode  string
@@ -244,8 +241,11 @@ func TestQuality(t *testing.T) {
 		acc[fam] = fewShotAccuracy(t, m, fam, 4, limit)
 		t.Logf("4-shot multiple choice, %s: accuracy %.3f (%s)", fam, acc[fam], which)
 	}
-	// Reached today, and guarded against regressions: the wording family.
+	// Reached today, and guarded against regressions: the wording family and
+	// both in-context families (retrieval from a table, the next stop on a route).
 	require.GreaterOrEqual(t, acc["status"], 0.75)
+	require.GreaterOrEqual(t, acc["lookup"], 0.75, "the in-context retrieval family")
+	require.GreaterOrEqual(t, acc["next"], 0.75, "the next stop on a route in the prompt")
 	if openTargets(t) {
 		passing := 0
 		for _, a := range acc {
@@ -253,7 +253,6 @@ func TestQuality(t *testing.T) {
 				passing++
 			}
 		}
-		assert.GreaterOrEqual(t, acc["lookup"], 0.75, "the in-context retrieval family")
 		assert.GreaterOrEqual(t, passing, 4, "families at 0.75 or better")
 	}
 	fmt.Fprintln(os.Stderr) // keep -v output readable

@@ -12,13 +12,24 @@ cd "$(dirname "$0")/../../.."
 work=${WORK:-$(mktemp -d)}
 echo "workspace: $work" >&2
 
-go run ./suites/demo/mkdata --seed 1 --vocab 2048 --out "$work"
+go run ./suites/demo/mkdata --seed 1 --vocab 2048 --drills 30000 --out "$work"
 
-LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread /usr/bin/python3 suites/demo/train/train.py \
-  --train "$work/train.u16" --valid "$work/valid.u16" --vocab 2048 --out "$work/model" \
-  --layers 4 --hidden 128 --heads 4 --ffn 512 --seq 256 --batch 12 --steps 3000 \
-  --lr 2.5e-3 --warmup 150 --act-l1 0.05 --embed-std 0.35 --eval-every 250 --eval-windows 32 \
-  --seed 1 --threads 2 --log "$work/train.log"
+# One run in three phases of the curriculum (the same resumable --state; the
+# drill share is the only argument that changes): mixed text and drills,
+# drills alone until the copying heads form, then mixed text again.
+train() { # train STEPS DRILL_SHARE
+  LD_LIBRARY_PATH=/usr/lib/x86_64-linux-gnu/openblas-pthread /usr/bin/python3 suites/demo/train/train.py \
+    --train "$work/train.u16" --valid "$work/valid.u16" --vocab 2048 --out "$work/model" \
+    --layers 6 --hidden 128 --heads 4 --ffn 512 --seq 256 --batch 12 --steps "$1" \
+    --lr 1e-3 --warmup 150 --schedule constant --act-l1 0.05 --embed-std 0.1 \
+    --prev-head 2.5 --prev-head-pos-amp 0.5 --prev-head-lags 1,2 \
+    --drill "$work/drill.u16" --drill-mix-start "$2" --drill-mix-end "$2" \
+    --dev "$work/dev.json" --dev-items 40 --eval-every 250 --eval-windows 32 \
+    --seed 1 --threads 2 --state "$work/state.pt" --log "$work/train.log"
+}
+train 1500 0.5
+train 3750 1.0
+train STEPS3 0.3
 
 for f in config.json model.safetensors tokenizer.json tokenizer_config.json train_log.json; do
   cp "$work/model/$f" suites/demo/model/

@@ -412,9 +412,9 @@ class Resume(unittest.TestCase):
                 train.run(train.parse_args([a if a != "60" else "20" for a in base]))
             err = io.StringIO()
             with contextlib.redirect_stderr(err):
-                rc = train.main(base + ["--lr", "0.01"])
+                rc = train.main(base + ["--weight-decay", "0.01"])
             self.assertEqual(rc, 2)
-            self.assertIn("different arguments (lr", err.getvalue())
+            self.assertIn("different arguments (weight_decay", err.getvalue())
             with open(state, "wb") as f:
                 f.write(b"not a state")
             err = io.StringIO()

@@ -447,8 +447,9 @@ def eval_line(e):
 
 STATE_FORMAT = 1
 # Arguments a resumed run may change: where it logs and saves, how far it
-# goes, and the drill share from here on (a curriculum in phases).
-RESUMABLE_CHANGES = {"steps", "log", "state", "out", "drill_mix_start", "drill_mix_end"}
+# goes, and the drill share and learning rate from here on (a curriculum in
+# phases).
+RESUMABLE_CHANGES = {"steps", "log", "state", "out", "drill_mix_start", "drill_mix_end", "lr"}
 
 
 def resume(args, model, opt, rng):
@@ -457,8 +458,8 @@ def resume(args, model, opt, rng):
     arguments must match this one's except RESUMABLE_CHANGES; with the
     constant schedule and the same constant drill share, going on to a
     larger --steps gives the same weights as one run of that length. A
-    different drill share makes a new phase of the curriculum: the same
-    phases in the same order give the same weights."""
+    different drill share or --lr makes a new phase of the curriculum: the
+    same phases in the same order give the same weights."""
     try:
         st = torch.load(args.state)
     except Exception as e:  # torch raises many kinds for a damaged file
