@@ -48,8 +48,8 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 	panelsPerSplit := (rowPanels + split - 1) / split
 	split = (rowPanels + panelsPerSplit - 1) / panelsPerSplit
 
-	pa := sc.packedA(rowPanels * mr * k)
-	defer sc.putPackedA(pa)
+	pa := sc.floats(usePackedX, rowPanels*mr*k)
+	defer sc.putFloats(usePackedX, pa)
 	if m*k <= packAlone || workers == 1 {
 		packA(pa, x, m, k, 0, rowPanels)
 	} else {
@@ -66,8 +66,8 @@ func gemmBlocked(sc *Scratch, y, x []float32, m int, w *Mat, bias []float32, thr
 	// job (weights read in place need no packing at all).
 	var shared []float32
 	if split > 1 && !readsPanelsInPlace(w, 0) {
-		shared = sc.packedB(colJobs * ncJob * k)
-		defer sc.putPackedB(shared)
+		shared = sc.floats(usePackedB, colJobs*ncJob*k)
+		defer sc.putFloats(usePackedB, shared)
 		kBlocks := (k + kcBlock - 1) / kcBlock
 		runJobs(sc.team(), colJobs*kBlocks, min(workers, colJobs*kBlocks), func() func(int) {
 			conv := make([]float32, max(kcBlock, ncJob))

@@ -16,10 +16,19 @@ type Scratch struct {
 	// to the parallel regions of the products run through this Scratch.
 	Team *Team
 
-	gemm sync.Pool // of *gemmScratch
-	a    sync.Pool // of *[]float32: packed x, shared by a call's workers
-	b    sync.Pool // of *[]float32: packed B, shared by a call's workers
+	gemm   sync.Pool    // of *gemmScratch
+	shared [2]sync.Pool // of *[]float32, by sharedUse: buffers a call's workers share
 }
+
+// sharedUse names a buffer a GEMM call's workers share. Each use has a pool
+// of its own: sharing one, a call asking for both would get back the other's
+// buffer, too small half the time, and allocate afresh on every call.
+type sharedUse int
+
+const (
+	usePackedX sharedUse = iota // the call's packed x
+	usePackedB                  // the call's packed B (when its rows are split over jobs)
+)
 
 // Linear is the package-level Linear, taking its packing buffers from s.
 func (s *Scratch) Linear(y, x []float32, m int, w *Mat, bias []float32, threads int) {
@@ -45,46 +54,22 @@ func (s *Scratch) get() *gemmScratch {
 	return newGemmScratch()
 }
 
-// packedA returns a buffer of n floats for a call's packed x, from s when
-// it holds one large enough (its contents are overwritten before use).
-func (s *Scratch) packedA(n int) []float32 {
-	if s == nil {
-		return make([]float32, n)
-	}
-	return pooledFloats(&s.a, n)
-}
-
-// putPackedA hands a packed-x buffer back to s (a no-op when s is nil).
-func (s *Scratch) putPackedA(b []float32) {
+// floats returns a buffer of n floats for use, from s when it holds one
+// large enough (its contents are overwritten before use).
+func (s *Scratch) floats(use sharedUse, n int) []float32 {
 	if s != nil {
-		s.a.Put(&b)
-	}
-}
-
-// packedB is packedA for a call's shared packed B. It has a pool of its
-// own: sharing x's, a call asking for both would get back the other's
-// buffer, too small half the time, and allocate afresh on every call.
-func (s *Scratch) packedB(n int) []float32 {
-	if s == nil {
-		return make([]float32, n)
-	}
-	return pooledFloats(&s.b, n)
-}
-
-// putPackedB hands a packed-B buffer back to s (a no-op when s is nil).
-func (s *Scratch) putPackedB(b []float32) {
-	if s != nil {
-		s.b.Put(&b)
-	}
-}
-
-// pooledFloats returns a buffer of n floats from p when it holds one large
-// enough, a fresh one otherwise.
-func pooledFloats(p *sync.Pool, n int) []float32 {
-	if b, ok := p.Get().(*[]float32); ok && cap(*b) >= n {
-		return (*b)[:n]
+		if b, ok := s.shared[use].Get().(*[]float32); ok && cap(*b) >= n {
+			return (*b)[:n]
+		}
 	}
 	return make([]float32, n)
+}
+
+// putFloats hands a buffer floats returned back to s (a no-op when s is nil).
+func (s *Scratch) putFloats(use sharedUse, b []float32) {
+	if s != nil {
+		s.shared[use].Put(&b)
+	}
 }
 
 // put hands buffer sets back to s (a no-op when s is nil).
