@@ -62,6 +62,31 @@ func dot16Rows(acc *[16]float32, x []float32, w *Mat, offs *[16]int, buf []float
 	halfTail(acc[:], x, w, offs[:], blocks)
 }
 
+// dot32Rows is dot8Rows over thirty-two rows (offs[q] for lane q). For
+// binary16 weights on CPUs with AVX-512 the rows run as two sixteen-lane
+// groups in one kernel that transposes the half-precision values before
+// widening them (half the bytes to shuffle); otherwise as two dot16Rows
+// calls. Every path gives four dot8RowsGo calls' bits.
+func dot32Rows(acc *[32]float32, x []float32, w *Mat, offs *[32]int, buf []float32) {
+	n := len(x)
+	blocks := n &^ 7
+	if blocks == 0 || w.DType != F16 || !hasAVX512 || !gemvAsm(w.DType) {
+		dot16Rows((*[16]float32)(acc[0:16]), x, w, (*[16]int)(offs[0:16]), buf)
+		dot16Rows((*[16]float32)(acc[16:32]), x, w, (*[16]int)(offs[16:32]), buf)
+		return
+	}
+	var p [32]*uint16
+	halfRowPtrs(p[:], w, offs[:], n)
+	dot32F16AVX512(&p, &x[0], blocks, acc)
+	halfTail(acc[:], x, w, offs[:], blocks)
+}
+
+// dot32F16AVX512 is the thirty-two-row binary16 kernel (dot8_amd64.s): n
+// a positive multiple of 8.
+//
+//go:noescape
+func dot32F16AVX512(rows *[32]*uint16, x *float32, n int, acc *[32]float32)
+
 // halfRowPtrs points p[q] at the first of the n stored half-precision
 // values of the row that starts at element offs[q] of w's storage.
 func halfRowPtrs(p []*uint16, w *Mat, offs []int, n int) {
@@ -101,6 +126,9 @@ func gemvAsm(dt DType) bool {
 // gemvKernel names the row-dot (GEMV) kernel used for w's dtype.
 func gemvKernel(dt DType) string {
 	if gemvAsm(dt) {
+		if dt == F16 && hasAVX512 {
+			return "avx2 8-row, avx-512 32-row groups"
+		}
 		return "avx2 8-row"
 	}
 	return "go 8-row"

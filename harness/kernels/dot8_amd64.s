@@ -272,3 +272,142 @@ bf16loop16:
 
 	STORE16
 	RET
+
+// Thirty-two-row binary16 kernel in AVX-512: two groups of sixteen rows,
+// each with one 512-bit accumulator (Z16 for rows 0 … 15, Z17 for rows
+// 16 … 31), lanes = rows. Lane by lane the order and rounding are
+// dot8F16AVX2's: acc[q] = acc[q] + float32(x[k]·w_q[k]) in ascending k,
+// VMULPS then VADDPS.
+//
+// The transpose runs on the binary16 values before they are widened, so
+// it moves half the bytes: for a group, Y0 … Y7 are loaded as
+//
+//	Y_i = [ w_i[k..k+7] | w_{i+8}[k..k+7] ]   (i = 0 … 7, 16-bit words)
+//
+// and three rounds of in-lane unpacks (words, double words, quad words)
+// transpose both 8×8 halves at once, leaving one register per k with
+// w_0[k] … w_7[k] in its low half and w_8[k] … w_15[k] in its high half;
+// VCVTPH2PS widens it to sixteen lanes in row order. The x values of the
+// block are broadcast once (Z24 … Z31) for both groups.
+
+// GROUP16LOAD loads rows OFF/8 … OFF/8+15 of the rows array (R13) at
+// element DI into Y0 … Y7.
+#define GROUP16LOAD(OFF) \
+	MOVQ        OFF+0(R13), AX; \
+	MOVQ        OFF+64(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X0; \
+	VINSERTI128 $1, (BX)(DI*2), Y0, Y0; \
+	MOVQ        OFF+8(R13), AX; \
+	MOVQ        OFF+72(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X1; \
+	VINSERTI128 $1, (BX)(DI*2), Y1, Y1; \
+	MOVQ        OFF+16(R13), AX; \
+	MOVQ        OFF+80(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X2; \
+	VINSERTI128 $1, (BX)(DI*2), Y2, Y2; \
+	MOVQ        OFF+24(R13), AX; \
+	MOVQ        OFF+88(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X3; \
+	VINSERTI128 $1, (BX)(DI*2), Y3, Y3; \
+	MOVQ        OFF+32(R13), AX; \
+	MOVQ        OFF+96(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X4; \
+	VINSERTI128 $1, (BX)(DI*2), Y4, Y4; \
+	MOVQ        OFF+40(R13), AX; \
+	MOVQ        OFF+104(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X5; \
+	VINSERTI128 $1, (BX)(DI*2), Y5, Y5; \
+	MOVQ        OFF+48(R13), AX; \
+	MOVQ        OFF+112(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X6; \
+	VINSERTI128 $1, (BX)(DI*2), Y6, Y6; \
+	MOVQ        OFF+56(R13), AX; \
+	MOVQ        OFF+120(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X7; \
+	VINSERTI128 $1, (BX)(DI*2), Y7, Y7
+
+// GROUP16MAC transposes Y0 … Y7 (GROUP16LOAD's layout), widens each k's
+// sixteen values and adds x[k+j]·column_j (x broadcast in Z24 … Z31) into
+// ACC for j = 0 … 7, in order. Clobbers Y0 … Y15 (and Z0 … Z7).
+#define GROUP16MAC(ACC) \
+	VPUNPCKLWD   Y1, Y0, Y8; \
+	VPUNPCKHWD   Y1, Y0, Y9; \
+	VPUNPCKLWD   Y3, Y2, Y10; \
+	VPUNPCKHWD   Y3, Y2, Y11; \
+	VPUNPCKLWD   Y5, Y4, Y12; \
+	VPUNPCKHWD   Y5, Y4, Y13; \
+	VPUNPCKLWD   Y7, Y6, Y14; \
+	VPUNPCKHWD   Y7, Y6, Y15; \
+	VPUNPCKLDQ   Y10, Y8, Y0; \
+	VPUNPCKHDQ   Y10, Y8, Y1; \
+	VPUNPCKLDQ   Y11, Y9, Y2; \
+	VPUNPCKHDQ   Y11, Y9, Y3; \
+	VPUNPCKLDQ   Y14, Y12, Y4; \
+	VPUNPCKHDQ   Y14, Y12, Y5; \
+	VPUNPCKLDQ   Y15, Y13, Y6; \
+	VPUNPCKHDQ   Y15, Y13, Y7; \
+	VPUNPCKLQDQ  Y4, Y0, Y8; \
+	VPUNPCKHQDQ  Y4, Y0, Y9; \
+	VPUNPCKLQDQ  Y5, Y1, Y10; \
+	VPUNPCKHQDQ  Y5, Y1, Y11; \
+	VPUNPCKLQDQ  Y6, Y2, Y12; \
+	VPUNPCKHQDQ  Y6, Y2, Y13; \
+	VPUNPCKLQDQ  Y7, Y3, Y14; \
+	VPUNPCKHQDQ  Y7, Y3, Y15; \
+	VCVTPH2PS    Y8, Z0; \
+	VCVTPH2PS    Y9, Z1; \
+	VCVTPH2PS    Y10, Z2; \
+	VCVTPH2PS    Y11, Z3; \
+	VCVTPH2PS    Y12, Z4; \
+	VCVTPH2PS    Y13, Z5; \
+	VCVTPH2PS    Y14, Z6; \
+	VCVTPH2PS    Y15, Z7; \
+	VMULPS       Z24, Z0, Z0; \
+	VMULPS       Z25, Z1, Z1; \
+	VMULPS       Z26, Z2, Z2; \
+	VMULPS       Z27, Z3, Z3; \
+	VMULPS       Z28, Z4, Z4; \
+	VMULPS       Z29, Z5, Z5; \
+	VMULPS       Z30, Z6, Z6; \
+	VMULPS       Z31, Z7, Z7; \
+	VADDPS       Z0, ACC, ACC; \
+	VADDPS       Z1, ACC, ACC; \
+	VADDPS       Z2, ACC, ACC; \
+	VADDPS       Z3, ACC, ACC; \
+	VADDPS       Z4, ACC, ACC; \
+	VADDPS       Z5, ACC, ACC; \
+	VADDPS       Z6, ACC, ACC; \
+	VADDPS       Z7, ACC, ACC
+
+// func dot32F16AVX512(rows *[32]*uint16, x *float32, n int, acc *[32]float32)
+TEXT ·dot32F16AVX512(SB), NOSPLIT, $0-32
+	MOVQ    acc+24(FP), R13
+	VMOVUPS (R13), Z16
+	VMOVUPS 64(R13), Z17
+	MOVQ    rows+0(FP), R13
+	MOVQ    x+8(FP), SI
+	MOVQ    n+16(FP), CX
+	XORQ    DI, DI
+
+f16loop32:
+	VBROADCASTSS 0(SI)(DI*4), Z24
+	VBROADCASTSS 4(SI)(DI*4), Z25
+	VBROADCASTSS 8(SI)(DI*4), Z26
+	VBROADCASTSS 12(SI)(DI*4), Z27
+	VBROADCASTSS 16(SI)(DI*4), Z28
+	VBROADCASTSS 20(SI)(DI*4), Z29
+	VBROADCASTSS 24(SI)(DI*4), Z30
+	VBROADCASTSS 28(SI)(DI*4), Z31
+	GROUP16LOAD(0)
+	GROUP16MAC(Z16)
+	GROUP16LOAD(128)
+	GROUP16MAC(Z17)
+	ADDQ $8, DI
+	CMPQ DI, CX
+	JLT  f16loop32
+
+	MOVQ    acc+24(FP), R13
+	VMOVUPS Z16, (R13)
+	VMOVUPS Z17, 64(R13)
+	VZEROUPPER
+	RET

@@ -17,5 +17,13 @@ func dot16Rows(acc *[16]float32, x []float32, w *Mat, offs *[16]int, buf []float
 	dot8RowsGo((*[8]float32)(acc[8:16]), x, w, (*[8]int)(offs[8:16]), buf)
 }
 
+// dot32Rows is dot8Rows over thirty-two rows (offs[q] for lane q), as four
+// eight-row calls.
+func dot32Rows(acc *[32]float32, x []float32, w *Mat, offs *[32]int, buf []float32) {
+	for g := 0; g < 32; g += 8 {
+		dot8RowsGo((*[8]float32)(acc[g:g+8]), x, w, (*[8]int)(offs[g:g+8]), buf)
+	}
+}
+
 // gemvKernel names the row-dot (GEMV) kernel used for w's dtype.
 func gemvKernel(DType) string { return "go 8-row" }

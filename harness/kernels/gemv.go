@@ -29,9 +29,9 @@ func gemvRows(team *Team, y, x []float32, w *Mat, bias []float32, threads int) {
 // rowsDot sets out[r] = bias[row] + Σ_k x[k]·W[row][k] for the Out×In W,
 // where row = idx[r] when idx is non-nil and row0+r otherwise. buf is
 // conversion scratch of gemvBuf floats (unused for F32 weights). Groups of
-// sixteen rows go through dot16Rows and then of eight through dot8Rows
-// (assembly where the CPU has it), the remaining rows four and then one at
-// a time; every path runs each row's
+// thirty-two rows go through dot32Rows, then of sixteen through dot16Rows
+// and of eight through dot8Rows (assembly where the CPU has it), the
+// remaining rows four and then one at a time; every path runs each row's
 // single accumulator in ascending k, so all give the same bits.
 func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int32) {
 	in := w.In
@@ -42,6 +42,20 @@ func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int3
 		return row0 + r
 	}
 	r := 0
+	for ; r+32 <= len(out); r += 32 {
+		var offs [32]int
+		for q := range offs {
+			offs[q] = rowOf(r+q) * in
+		}
+		var acc [32]float32
+		dot32Rows(&acc, x, w, &offs, buf)
+		for q := range 32 {
+			if bias != nil {
+				acc[q] += bias[rowOf(r+q)]
+			}
+			out[r+q] = acc[q]
+		}
+	}
 	for ; r+16 <= len(out); r += 16 {
 		var offs [16]int
 		for q := range offs {
