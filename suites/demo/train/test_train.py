@@ -12,6 +12,7 @@ import io
 import json
 import math
 import os
+import shutil
 import struct
 import subprocess
 import sys
@@ -422,6 +423,43 @@ class Resume(unittest.TestCase):
                 rc = train.main(base)
             self.assertEqual(rc, 2)
             self.assertIn("cannot read the saved state", err.getvalue())
+
+
+class Select(unittest.TestCase):
+    """--select picks the written weights: the lowest validation loss by
+    default, the last step's with last. A second phase at a ruinous rate
+    makes the last eval far worse than the best, so the two must differ."""
+
+    def test_last_writes_the_final_weights(self):
+        with tempfile.TemporaryDirectory() as d:
+            train_path, valid_path = write_stream(d)
+            state = os.path.join(d, "state.pt")
+            base = ["--train", train_path, "--valid", valid_path, "--schedule", "constant",
+                    "--state", state] + TINY
+            with contextlib.redirect_stderr(io.StringIO()):
+                train.run(train.parse_args(base + ["--out", os.path.join(d, "p1")]))
+                steps = [a if a != "60" else "80" for a in base] + ["--lr", "1.0"]
+                shutil.copy(state, state + ".p1")
+                _, log_best = train.run(train.parse_args(steps + ["--out", os.path.join(d, "best")]))
+                shutil.copy(state + ".p1", state)
+                _, log_last = train.run(train.parse_args(steps + ["--out", os.path.join(d, "last"), "--select", "last"]))
+            self.assertEqual(log_last["written_step"], 80)
+            self.assertEqual(log_last["select"], "last")
+            self.assertLessEqual(log_best["written_step"], 60)
+            self.assertGreater(log_last["written_valid_loss"], log_best["written_valid_loss"])
+            final = torch.load(state)["model"]
+            header, blobs = {}, {}
+            for name in ("best", "last"):
+                with open(os.path.join(d, name, "model.safetensors"), "rb") as f:
+                    raw = f.read()
+                n = struct.unpack("<Q", raw[:8])[0]
+                header = json.loads(raw[8:8 + n])
+                blobs[name] = {k: np.frombuffer(raw[8 + n + v["data_offsets"][0]:8 + n + v["data_offsets"][1]],
+                                                dtype="<f2").reshape(v["shape"])
+                               for k, v in header.items() if k != "__metadata__"}
+            for k, v in blobs["last"].items():
+                np.testing.assert_array_equal(v, final[k].half().numpy(), err_msg=k)
+            self.assertTrue(any(not np.array_equal(blobs["best"][k], blobs["last"][k]) for k in blobs["last"]))
 
 
 if __name__ == "__main__":

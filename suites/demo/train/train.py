@@ -449,7 +449,7 @@ STATE_FORMAT = 1
 # Arguments a resumed run may change: where it logs and saves, how far it
 # goes, and the drill share and learning rate from here on (a curriculum in
 # phases).
-RESUMABLE_CHANGES = {"steps", "log", "state", "out", "drill_mix_start", "drill_mix_end", "lr"}
+RESUMABLE_CHANGES = {"steps", "log", "state", "out", "drill_mix_start", "drill_mix_end", "lr", "select"}
 
 
 def resume(args, model, opt, rng):
@@ -482,7 +482,10 @@ def resume(args, model, opt, rng):
 
 
 def run(args):
-    """run trains, writes DIR's three files, and returns (model with the best weights, log)."""
+    """run trains, writes DIR's three files, and returns (model with the written weights, log).
+
+    The written weights are those of the eval with the lowest validation loss
+    (--select valid-loss) or those at the last step (--select last)."""
     torch.set_num_threads(args.threads)
     torch.use_deterministic_algorithms(True)
     blas = blas_in_use(args.threads)
@@ -592,16 +595,22 @@ def run(args):
             do_eval(step + 1, lr_now)
             save_state(step + 1)
 
-    model.load_state_dict(best[2])
+    if args.select == "last":
+        chosen = (args.steps, evals[-1]["valid_loss"] if evals else None,
+                  {k: v.detach().clone() for k, v in model.state_dict().items()})
+    else:
+        chosen = best
+    model.load_state_dict(chosen[2])
     names = [n for n, _ in model.named_parameters()]
-    write_atomic(os.path.join(args.out, "model.safetensors"), safetensors_bytes({n: best[2][n] for n in names}))
+    write_atomic(os.path.join(args.out, "model.safetensors"), safetensors_bytes({n: chosen[2][n] for n in names}))
     write_atomic(os.path.join(args.out, "config.json"), (json.dumps(opt_config(args), indent=2) + "\n").encode())
     log = {"args": vars(args), "torch_version": torch.__version__, "blas": blas, "threads": args.threads,
            "parameters": n_params, "tokens_seen": args.steps * args.batch * args.seq,
            "wall_time_s": time.monotonic() - t0,
            "weight_decay_on": "q/k/v/out_proj and fc1/fc2 weight matrices; none on biases, LayerNorms, "
                               "embed_tokens (tied head) and embed_positions",
-           "evals": evals, "best_step": best[0], "best_valid_loss": best[1]}
+           "evals": evals, "best_step": best[0], "best_valid_loss": best[1],
+           "select": args.select, "written_step": chosen[0], "written_valid_loss": chosen[1]}
     write_atomic(os.path.join(args.out, "train_log.json"), (json.dumps(log, indent=2) + "\n").encode())
     return model, log
 
@@ -624,6 +633,9 @@ def parse_args(argv=None):
     ap.add_argument("--warmup", type=int, default=200, help="linear warmup steps")
     ap.add_argument("--schedule", choices=("cosine", "constant"), default="cosine",
                     help="after the warmup: cosine decay to a tenth of --lr at the last step, or constant")
+    ap.add_argument("--select", choices=("valid-loss", "last"), default="valid-loss",
+                    help="which weights to write: the eval with the lowest validation loss, or the last step's "
+                         "(validation loss does not track few-shot accuracy once it flattens)")
     ap.add_argument("--state", help="save a resumable training state here at every eval, and resume from it "
                                     "when it exists")
     ap.add_argument("--weight-decay", type=float, default=0.1)
