@@ -963,11 +963,23 @@ func (m *Model) mlpRow(st *state, L *layer, idx [][]int32, r int, y []float32, n
 		m.mlpHidden(u, h, L, nil, nil)
 		m.scratch.Linear(y, u, 1, L.down, L.downB, m.threads)
 	} else {
-		m.mlpHidden(u[:len(idx[r])], h, L, idx[r], nbuf)
+		hk := u[:len(idx[r])]
+		m.mlpHidden(hk, h, L, idx[r], nbuf)
+		// A kept neuron whose activation is exactly zero (ReLU) adds
+		// nothing: with finite weights dropping it keeps the bits
+		// (kernels.DropZeroInputs) and saves its down column's read.
 		if n := L.neurons; n != nil {
-			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], n.cols, L.downB, n.index(nbuf, idx[r], n.down), m.threads)
+			cols := n.index(nbuf, idx[r], n.down)
+			if L.downFinite {
+				hk, cols = kernels.DropZeroInputs(hk, cols, cols)
+			}
+			m.scratch.LinearScatterInParallel(y, hk, n.cols, L.downB, cols, m.threads)
 		} else {
-			m.scratch.LinearScatterInParallel(y, u[:len(idx[r])], L.down, L.downB, idx[r], m.threads)
+			kept := idx[r]
+			if L.downFinite {
+				hk, kept = kernels.DropZeroInputs(hk, kept, make([]int32, len(kept)))
+			}
+			m.scratch.LinearScatterInParallel(y, hk, L.down, L.downB, kept, m.threads)
 		}
 	}
 	xr := st.x[r*d : (r+1)*d]

@@ -54,6 +54,7 @@ type layer struct {
 	mlpNormW, mlpNormB   []float32
 	up, gate, down       *kernels.Mat
 	neurons              *neuronRows  // the MLP's neuron-major copy (Options.NeuronMajor), or nil
+	downFinite           bool         // every down weight is finite (checked with NeuronMajor): sparse rows drop zero activations
 	oT                   *kernels.Mat // input-major copy of o (Options.NeuronMajor with NoPanels), or nil
 	upB, downB           []float32
 }
@@ -130,6 +131,7 @@ func Load(dir string, opts Options) (*Model, error) {
 			for i, ok := next(); ok; i, ok = next() {
 				L := &m.layers[i]
 				L.neurons = newNeuronRows(L.up, L.gate, L.down)
+				L.downFinite = L.down.Finite()
 				if o := L.o; o != nil && !o.Transposed && opts.NoPanels {
 					// With panels, kept heads read o's panels instead.
 					L.oT = neuronMajor(o)

@@ -2,6 +2,7 @@ package engine
 
 import (
 	"fmt"
+	"math"
 	"path/filepath"
 	"strings"
 	"testing"
@@ -127,6 +128,8 @@ func TestNeuronMajorGivesTheSameBits(t *testing.T) {
 						require.NoError(t, err)
 						for li := range nm.layers {
 							require.NotNil(t, nm.layers[li].neurons, "layer %d has no neuron-major copy", li)
+							// Finite weights: its sparse rows drop zero activations.
+							require.True(t, nm.layers[li].downFinite, "layer %d", li)
 							// Without panels, dropped heads scatter from an
 							// input-major copy of o (OPT and Llama store o
 							// output-major); with them, from o's panels.
@@ -228,4 +231,59 @@ func TestReusedDecodeStateLeavesNoTrace(t *testing.T) {
 			require.Equal(t, want, decodeLogProbs(t, m, toks, h))
 		})
 	}
+}
+
+// A sparse row drops its exactly-zero activations before the down product
+// only when every down weight is finite: with an infinity in a neuron's
+// down column, 0·Inf must still poison the outputs as the dense product
+// does. Layer 0's neuron 5 is always off (zero up row, bias −1), kept by
+// the hook at three positions in four, and meets an infinity in its down
+// column; the model's hooked decode gives the hidden rows (NaN where NaN)
+// of a model loaded without the neuron-major copies, which never drops
+// zeros. Dropping them regardless gives finite rows there, and fails.
+func TestZeroActivationsAreKeptWhenWeightsAreNotFinite(t *testing.T) {
+	const j = 5
+	ffn := synth.Tiny(checkpoint.OPT).FFN
+	plain := tinyModel(t, checkpoint.OPT, 1, func(name string, v []float32) {
+		switch {
+		case strings.HasSuffix(name, "layers.0.fc1.weight"):
+			in := len(v) / ffn
+			clear(v[j*in : (j+1)*in])
+		case strings.HasSuffix(name, "layers.0.fc1.bias"):
+			v[j] = -1
+		case strings.HasSuffix(name, "layers.0.fc2.weight"):
+			v[3*ffn+j] = float32(math.Inf(1)) // output 3's weight from neuron j
+		}
+	})
+	nm, err := Load(plain.Dir, Options{Threads: 1, NeuronMajor: true})
+	require.NoError(t, err)
+	defer nm.Close()
+	require.False(t, nm.layers[0].downFinite)
+	require.True(t, nm.layers[1].downFinite)
+	toks := seq(12, 96, 17)
+	h := posHook{heads: nm.Config.Heads}
+	// The final hidden rows, one token at a time (log-probabilities refuse
+	// NaN logits).
+	decode := func(m *Model) []float32 {
+		s := m.NewSession()
+		defer s.Close()
+		var out []float32
+		for _, tok := range toks {
+			hid, err := m.Forward([]*Session{s}, [][]int{{tok}}, h)
+			require.NoError(t, err)
+			out = append(out, hid...)
+		}
+		return out
+	}
+	want, got := decode(plain), decode(nm)
+	nans := 0
+	for i := range want {
+		if math.IsNaN(float64(want[i])) {
+			nans++
+			require.True(t, math.IsNaN(float64(got[i])), "value %d: %v, want NaN", i, got[i])
+			continue
+		}
+		require.Equal(t, math.Float32bits(want[i]), math.Float32bits(got[i]), "value %d", i)
+	}
+	require.Positive(t, nans, "no position met 0·Inf: the test plants nothing")
 }

@@ -123,6 +123,11 @@ func gemvAsm(dt DType) bool {
 	return false
 }
 
+// padTail reports whether rowsDot should finish its last few rows with one
+// padded eight-row call: where the assembly kernel runs (at least one block
+// of eight k), that is cheaper than the scalar loops.
+func padTail(dt DType, n int) bool { return gemvAsm(dt) && n >= 8 }
+
 // gemvKernel names the row-dot (GEMV) kernel used for w's dtype.
 func gemvKernel(dt DType) string {
 	if gemvAsm(dt) {

@@ -25,5 +25,8 @@ func dot32Rows(acc *[32]float32, x []float32, w *Mat, offs *[32]int, buf []float
 	}
 }
 
+// padTail is false in the portable build: its row loops are the twins.
+func padTail(DType, int) bool { return false }
+
 // gemvKernel names the row-dot (GEMV) kernel used for w's dtype.
 func gemvKernel(DType) string { return "go 8-row" }

@@ -170,3 +170,28 @@ func ascendingIn(idx []int32, n int) bool {
 	}
 	return true
 }
+
+// DropZeroInputs removes the inputs of a scattered product (LinearScatterIn
+// and its parallel and panel forms) whose value is exactly zero: it moves
+// the non-zero entries of h to its front in order, writes their indices
+// into keep (len(keep) >= len(h); keep may be idx itself), and returns both
+// shortened. The product over what is left has the bits of the product over
+// everything when the weights are finite (Mat.Finite): its accumulators
+// start at +0 and add in ascending order, a zero input adds a product of
+// ±0, and a sum that starts at +0 is never −0 in round-to-nearest, so
+// adding ±0 leaves it unchanged. With a non-finite weight it would not
+// (0·Inf is NaN): check Finite first.
+func DropZeroInputs(h []float32, idx, keep []int32) ([]float32, []int32) {
+	if len(idx) != len(h) || len(keep) < len(h) {
+		panic(msgDropZeroLen)
+	}
+	n := 0
+	for r, v := range h {
+		if v != 0 {
+			h[n] = v
+			keep[n] = idx[r]
+			n++
+		}
+	}
+	return h[:n], keep[:n]
+}

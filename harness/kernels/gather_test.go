@@ -144,3 +144,89 @@ func TestGatherScatterNaN(t *testing.T) {
 		}
 	}
 }
+
+// Dropping the exactly-zero inputs (+0 and −0, as ReLU leaves them) of a
+// scattered product keeps its bits when the weights are finite: compared
+// with the full product (dense Linear, every input kept) and with the
+// scatter over the undropped kept set, for every dtype and layout, with and
+// without a bias, on one and on two threads, with panels.
+func TestDropZeroInputsKeepsTheBits(t *testing.T) {
+	r := newRand(14)
+	for _, dt := range allDTypes {
+		for _, tr := range []bool{false, true} {
+			w, _ := testMat(r, dt, 65, 300, tr)
+			if !w.Finite() {
+				t.Fatalf("%v: the test matrix is not finite", dt)
+			}
+			x := randVec(r, 300)
+			for i := range x {
+				switch i % 3 {
+				case 0:
+					x[i] = 0
+				case 1:
+					if i%2 == 0 {
+						x[i] = float32(math.Copysign(0, -1))
+					}
+				}
+			}
+			for _, bias := range [][]float32{nil, randVec(r, 65)} {
+				all := pickIdx(300, 1)
+				want := make([]float32, 65)
+				kernels.Linear(want, x, 1, w, bias, 1)
+				h := append([]float32(nil), x...)
+				hk, kept := kernels.DropZeroInputs(h, all, make([]int32, len(all)))
+				if len(kept) == len(all) || len(kept) == 0 {
+					t.Fatalf("%v: kept %d of %d: nothing was dropped", dt, len(kept), len(all))
+				}
+				for _, threads := range []int{1, 2} {
+					got := make([]float32, 65)
+					kernels.LinearScatterInParallel(got, hk, w, bias, kept, threads)
+					if i := bitsEqual(want, got); i >= 0 {
+						t.Fatalf("%v T%v bias %v threads %d: dropped %v, full %v at %d", dt, tr, bias != nil, threads, got[i], want[i], i)
+					}
+				}
+				// A kept subset with zeros in it, dropped in place (keep = idx).
+				sub := pickIdx(300, 2)
+				hs := make([]float32, len(sub))
+				for q, j := range sub {
+					hs[q] = x[j]
+				}
+				full := make([]float32, 65)
+				kernels.LinearScatterIn(full, hs, w, bias, sub)
+				subCopy := append([]int32(nil), sub...)
+				hd, kd := kernels.DropZeroInputs(hs, subCopy, subCopy)
+				got := make([]float32, 65)
+				kernels.LinearScatterIn(got, hd, w, bias, kd)
+				if i := bitsEqual(full, got); i >= 0 {
+					t.Fatalf("%v T%v subset: dropped %v, full %v at %d", dt, tr, got[i], full[i], i)
+				}
+			}
+		}
+	}
+}
+
+// Finite finds an infinity or a NaN anywhere in the storage, per dtype; a
+// zero input meeting one is not dropped (0·Inf is NaN), which the engine's
+// test of zero activations checks end to end.
+func TestMatFinite(t *testing.T) {
+	for _, dt := range allDTypes {
+		for _, bad := range []float32{float32(math.Inf(1)), float32(math.Inf(-1)), float32(math.NaN())} {
+			r := newRand(15)
+			w, _ := testMat(r, dt, 9, 7, false)
+			if !w.Finite() {
+				t.Fatalf("%v: finite matrix reported not finite", dt)
+			}
+			switch dt {
+			case kernels.F32:
+				w.F32[62] = bad
+			case kernels.F16:
+				w.Half[62] = kernels.F16Bits(bad)
+			default:
+				w.Half[62] = kernels.BF16Bits(bad)
+			}
+			if w.Finite() {
+				t.Fatalf("%v: %v at the last element not found", dt, bad)
+			}
+		}
+	}
+}

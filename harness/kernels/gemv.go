@@ -30,8 +30,9 @@ func gemvRows(team *Team, y, x []float32, w *Mat, bias []float32, threads int) {
 // where row = idx[r] when idx is non-nil and row0+r otherwise. buf is
 // conversion scratch of gemvBuf floats (unused for F32 weights). Groups of
 // thirty-two rows go through dot32Rows, then of sixteen through dot16Rows
-// and of eight through dot8Rows (assembly where the CPU has it), the
-// remaining rows four and then one at a time; every path runs each row's
+// and of eight through dot8Rows (assembly where the CPU has it); the last
+// few rows go through one padded dot8Rows call where the assembly runs, or
+// four and then one at a time otherwise; every path runs each row's
 // single accumulator in ascending k, so all give the same bits.
 func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int32) {
 	in := w.In
@@ -83,6 +84,24 @@ func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int3
 			}
 			out[r+q] = acc[q]
 		}
+	}
+	if rest := len(out) - r; rest > 0 && padTail(w.DType, in) {
+		// Fewer than eight rows left: one eight-row call with the last row
+		// repeated in the spare lanes (each lane is its own chain, so the
+		// kept lanes' bits do not change) instead of the scalar loops below.
+		var offs [8]int
+		for q := range offs {
+			offs[q] = rowOf(r+min(q, rest-1)) * in
+		}
+		var acc [8]float32
+		dot8Rows(&acc, x, w, &offs, buf)
+		for q := range rest {
+			if bias != nil {
+				acc[q] += bias[rowOf(r+q)]
+			}
+			out[r+q] = acc[q]
+		}
+		return
 	}
 	for ; r+4 <= len(out); r += 4 {
 		j0, j1, j2, j3 := rowOf(r), rowOf(r+1), rowOf(r+2), rowOf(r+3)

@@ -95,3 +95,31 @@ func (m *Mat) at(p int) float32 {
 	}
 	return m.F32[p]
 }
+
+// Finite reports whether every stored value is finite (no infinity, no
+// NaN). A sparse product may skip an input whose value is exactly zero only
+// when the weights it would meet are finite: 0·Inf and 0·NaN are NaN.
+func (m *Mat) Finite() bool {
+	m.Check()
+	switch m.DType {
+	case F32:
+		for _, v := range m.F32 {
+			if v-v != 0 { // Inf - Inf and NaN - NaN are NaN
+				return false
+			}
+		}
+	case F16:
+		for _, h := range m.Half {
+			if h&0x7c00 == 0x7c00 {
+				return false
+			}
+		}
+	case BF16:
+		for _, h := range m.Half {
+			if h&0x7f80 == 0x7f80 {
+				return false
+			}
+		}
+	}
+	return true
+}

@@ -25,6 +25,7 @@ const (
 	msgScatterY    = "kernels: LinearScatterIn: len(y) != Out"
 	msgScatterBias = "kernels: LinearScatterIn: bias is neither nil nor of length Out"
 	msgScatterIdx  = "kernels: LinearScatterIn: idx not ascending, not unique or out of range [0, In)"
+	msgDropZeroLen = "kernels: DropZeroInputs: len(idx) != len(h) or keep shorter than h"
 	msgConvLen     = "kernels: conversion: len(dst) != len(src)"
 	msgVecLen      = "kernels: vector op: slice lengths differ"
 	msgArgmaxEmpty = "kernels: Argmax: empty slice"

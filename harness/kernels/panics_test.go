@@ -25,6 +25,8 @@ func TestBadArgumentsPanic(t *testing.T) {
 		{"Mat bad dtype", "DType", func() { (&kernels.Mat{DType: 7}).Check() }},
 		{"Mat negative", "negative", func() { (&kernels.Mat{DType: kernels.F32, Out: -1, In: -1, F32: []float32{0}}).Check() }},
 		{"Row index", "Row", func() { f32(2, 3).Row(make([]float32, 3), 2) }},
+		{"DropZeroInputs idx", "DropZeroInputs", func() { kernels.DropZeroInputs(make([]float32, 3), make([]int32, 2), make([]int32, 3)) }},
+		{"DropZeroInputs keep", "DropZeroInputs", func() { kernels.DropZeroInputs(make([]float32, 3), make([]int32, 3), make([]int32, 2)) }},
 		{"Row len", "Row", func() { f32(2, 3).Row(make([]float32, 2), 0) }},
 		{"Linear x", "len(x)", func() { kernels.Linear(make([]float32, 4), make([]float32, 5), 2, f32(2, 3), nil, 1) }},
 		{"Linear y", "len(y)", func() { kernels.Linear(make([]float32, 5), make([]float32, 6), 2, f32(2, 3), nil, 1) }},
