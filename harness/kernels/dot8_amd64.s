@@ -290,41 +290,26 @@ bf16loop16:
 // VCVTPH2PS widens it to sixteen lanes in row order. The x values of the
 // block are broadcast once (Z24 … Z31) for both groups.
 
+// ROWPAIR loads eight k (at element DI) of the rows whose pointers sit at
+// byte offsets LO and HI of the rows array (R13) into the low and high
+// halves of Y (X its low half).
+#define ROWPAIR(LO, HI, X, Y) \
+	MOVQ        LO(R13), AX; \
+	MOVQ        HI(R13), BX; \
+	VMOVDQU     (AX)(DI*2), X; \
+	VINSERTI128 $1, (BX)(DI*2), Y, Y
+
 // GROUP16LOAD loads rows OFF/8 … OFF/8+15 of the rows array (R13) at
-// element DI into Y0 … Y7.
+// element DI into Y0 … Y7: row i and row i+8 into Y_i.
 #define GROUP16LOAD(OFF) \
-	MOVQ        OFF+0(R13), AX; \
-	MOVQ        OFF+64(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X0; \
-	VINSERTI128 $1, (BX)(DI*2), Y0, Y0; \
-	MOVQ        OFF+8(R13), AX; \
-	MOVQ        OFF+72(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X1; \
-	VINSERTI128 $1, (BX)(DI*2), Y1, Y1; \
-	MOVQ        OFF+16(R13), AX; \
-	MOVQ        OFF+80(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X2; \
-	VINSERTI128 $1, (BX)(DI*2), Y2, Y2; \
-	MOVQ        OFF+24(R13), AX; \
-	MOVQ        OFF+88(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X3; \
-	VINSERTI128 $1, (BX)(DI*2), Y3, Y3; \
-	MOVQ        OFF+32(R13), AX; \
-	MOVQ        OFF+96(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X4; \
-	VINSERTI128 $1, (BX)(DI*2), Y4, Y4; \
-	MOVQ        OFF+40(R13), AX; \
-	MOVQ        OFF+104(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X5; \
-	VINSERTI128 $1, (BX)(DI*2), Y5, Y5; \
-	MOVQ        OFF+48(R13), AX; \
-	MOVQ        OFF+112(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X6; \
-	VINSERTI128 $1, (BX)(DI*2), Y6, Y6; \
-	MOVQ        OFF+56(R13), AX; \
-	MOVQ        OFF+120(R13), BX; \
-	VMOVDQU     (AX)(DI*2), X7; \
-	VINSERTI128 $1, (BX)(DI*2), Y7, Y7
+	ROWPAIR(OFF+0, OFF+64, X0, Y0); \
+	ROWPAIR(OFF+8, OFF+72, X1, Y1); \
+	ROWPAIR(OFF+16, OFF+80, X2, Y2); \
+	ROWPAIR(OFF+24, OFF+88, X3, Y3); \
+	ROWPAIR(OFF+32, OFF+96, X4, Y4); \
+	ROWPAIR(OFF+40, OFF+104, X5, Y5); \
+	ROWPAIR(OFF+48, OFF+112, X6, Y6); \
+	ROWPAIR(OFF+56, OFF+120, X7, Y7)
 
 // GROUP16MAC transposes Y0 … Y7 (GROUP16LOAD's layout), widens each k's
 // sixteen values and adds x[k+j]·column_j (x broadcast in Z24 … Z31) into

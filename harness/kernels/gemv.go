@@ -42,65 +42,42 @@ func rowsDot(out, x []float32, w *Mat, bias, buf []float32, row0 int, idx []int3
 		}
 		return row0 + r
 	}
+	// group runs one row-group kernel over rows r … r+n-1, lane q on row
+	// rowOf(r+min(q, last)) (a short last group repeats its last row in
+	// the spare lanes: each lane is its own chain, so the others' bits do
+	// not change), and writes the first min(n, last+1) lanes out.
+	group := func(r, n, last int, dot func(acc []float32, offs []int)) {
+		var offsA [32]int
+		var accA [32]float32
+		offs, acc := offsA[:n], accA[:n]
+		for q := range offs {
+			offs[q] = rowOf(r+min(q, last)) * in
+		}
+		dot(acc, offs)
+		for q := range min(n, last+1) {
+			if bias != nil {
+				acc[q] += bias[rowOf(r+q)]
+			}
+			out[r+q] = acc[q]
+		}
+	}
+	dot32 := func(acc []float32, offs []int) { dot32Rows((*[32]float32)(acc), x, w, (*[32]int)(offs), buf) }
+	dot16 := func(acc []float32, offs []int) { dot16Rows((*[16]float32)(acc), x, w, (*[16]int)(offs), buf) }
+	dot8 := func(acc []float32, offs []int) { dot8Rows((*[8]float32)(acc), x, w, (*[8]int)(offs), buf) }
 	r := 0
 	for ; r+32 <= len(out); r += 32 {
-		var offs [32]int
-		for q := range offs {
-			offs[q] = rowOf(r+q) * in
-		}
-		var acc [32]float32
-		dot32Rows(&acc, x, w, &offs, buf)
-		for q := range 32 {
-			if bias != nil {
-				acc[q] += bias[rowOf(r+q)]
-			}
-			out[r+q] = acc[q]
-		}
+		group(r, 32, 31, dot32)
 	}
 	for ; r+16 <= len(out); r += 16 {
-		var offs [16]int
-		for q := range offs {
-			offs[q] = rowOf(r+q) * in
-		}
-		var acc [16]float32
-		dot16Rows(&acc, x, w, &offs, buf)
-		for q := range 16 {
-			if bias != nil {
-				acc[q] += bias[rowOf(r+q)]
-			}
-			out[r+q] = acc[q]
-		}
+		group(r, 16, 15, dot16)
 	}
 	for ; r+8 <= len(out); r += 8 {
-		var offs [8]int
-		for q := range offs {
-			offs[q] = rowOf(r+q) * in
-		}
-		var acc [8]float32
-		dot8Rows(&acc, x, w, &offs, buf)
-		for q := range 8 {
-			if bias != nil {
-				acc[q] += bias[rowOf(r+q)]
-			}
-			out[r+q] = acc[q]
-		}
+		group(r, 8, 7, dot8)
 	}
 	if rest := len(out) - r; rest > 0 && padTail(w.DType, in) {
-		// Fewer than eight rows left: one eight-row call with the last row
-		// repeated in the spare lanes (each lane is its own chain, so the
-		// kept lanes' bits do not change) instead of the scalar loops below.
-		var offs [8]int
-		for q := range offs {
-			offs[q] = rowOf(r+min(q, rest-1)) * in
-		}
-		var acc [8]float32
-		dot8Rows(&acc, x, w, &offs, buf)
-		for q := range rest {
-			if bias != nil {
-				acc[q] += bias[rowOf(r+q)]
-			}
-			out[r+q] = acc[q]
-		}
+		// Fewer than eight rows left: one padded eight-row call instead of
+		// the scalar loops below.
+		group(r, 8, rest-1, dot8)
 		return
 	}
 	for ; r+4 <= len(out); r += 4 {
