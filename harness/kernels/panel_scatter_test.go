@@ -26,6 +26,19 @@ func keptRuns(r interface{ IntN(int) int }, n int) []int32 {
 	return idx
 }
 
+// keptScattered draws each input of [0, n) with probability one half, as
+// ReLU leaves a predictor's hidden units: runs average two inputs, so the
+// panel scatter takes its indexed kernel where it has one.
+func keptScattered(r interface{ IntN(int) int }, n int) []int32 {
+	var idx []int32
+	for k := range n {
+		if r.IntN(2) == 0 {
+			idx = append(idx, int32(k))
+		}
+	}
+	return idx
+}
+
 // LinearScatterInPanels gives LinearScatterIn's bits (the input-major copy's
 // path and the Out×In path alike) for every dtype, stored layout, output
 // count (whole panel groups, a short last group, a short last panel) and
@@ -38,12 +51,15 @@ func TestLinearScatterInPanelsMatchesScatterIn(t *testing.T) {
 	defer team.Close()
 	for _, dt := range []kernels.DType{kernels.F32, kernels.F16, kernels.BF16} {
 		for _, tr := range []bool{false, true} {
-			for _, out := range []int{768, 100, 7} {
-				in := 384
+			for _, c := range []struct {
+				out  int
+				kept func(interface{ IntN(int) int }, int) []int32
+			}{{768, keptRuns}, {100, keptRuns}, {7, keptRuns}, {768, keptScattered}, {100, keptScattered}} {
+				out, in := c.out, 384
 				name := fmt.Sprintf("%v/transposed=%v/out=%d", dt, tr, out)
 				w, logical := testMat(r, dt, out, in, tr)
 				w.Panels = kernels.PackPanels(w)
-				idx := keptRuns(r, in)
+				idx := c.kept(r, in)
 				h := randVec(r, len(idx))
 				bias := randVec(r, out)
 				for _, b := range [][]float32{nil, bias} {

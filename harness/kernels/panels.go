@@ -128,14 +128,14 @@ func panelDot4AtGo(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, pa
 // over the kept inputs only: Σ_r x[r]·W[row][idx[r]] (panelSums). Panels go
 // panelGroup at a time; a short last group repeats its final panel, whose
 // extra results are dropped.
-func panelRows(out, x []float32, w *Mat, bias []float32, idx []int32, list []int) {
+func panelRows(out, x []float32, w *Mat, bias []float32, idx []int32, indexed bool, list []int) {
 	var acc [panelGroup * PanelRows]float32
 	for g0 := 0; g0 < len(list); g0 += panelGroup {
 		var ps [panelGroup]int
 		for q := range ps {
 			ps[q] = list[min(g0+q, len(list)-1)]
 		}
-		panelSums(&acc, x, w, &ps, idx)
+		panelSums(&acc, x, w, &ps, idx, indexed)
 		for q := 0; q < panelGroup && g0+q < len(list); q++ {
 			// The rows of panel q that exist and fit out, as whole slices
 			// (one bounds check each, not one per row).
@@ -158,13 +158,17 @@ func panelRows(out, x []float32, w *Mat, bias []float32, idx []int32, list []int
 // being input idx[r]'s value: each run of consecutive kept inputs is one
 // contiguous stretch of every panel, one panelDot4At call, the
 // accumulators carried from run to run, so the sums are the bits of
-// LinearScatterIn's ascending order.
-func panelSums(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int, idx []int32) {
+// LinearScatterIn's ascending order; with indexed, one panelDot4Idx call
+// over all of them (the same order and bits).
+func panelSums(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels *[panelGroup]int, idx []int32, indexed bool) {
 	if idx == nil {
 		panelDot4(acc, x, w, panels)
 		return
 	}
 	*acc = [panelGroup * PanelRows]float32{}
+	if indexed && panelDot4Idx(acc, x, idx, w, panels) {
+		return
+	}
 	for r := 0; r < len(idx); {
 		e := r + 1
 		for e < len(idx) && idx[e] == idx[e-1]+1 {
@@ -173,6 +177,19 @@ func panelSums(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, panels
 		panelDot4At(acc, x[r:e], w, panels, int(idx[r]))
 		r = e
 	}
+}
+
+// shortRuns reports whether the kept inputs idx (strictly ascending) come
+// in runs of fewer than eight on average: then one indexed kernel call
+// (panelDot4Idx) beats a call per run.
+func shortRuns(idx []int32) bool {
+	runs := 0
+	for r := range idx {
+		if r == 0 || idx[r] != idx[r-1]+1 {
+			runs++
+		}
+	}
+	return 8*runs > len(idx)
 }
 
 // gemvPanels is the m == 1 Linear over w's panels (over the kept inputs
@@ -185,25 +202,28 @@ func gemvPanels(team *Team, y, x []float32, w *Mat, bias []float32, idx []int32,
 	if idx != nil {
 		work = w.Out * len(idx)
 	}
+	// Kept inputs in short runs go through the indexed kernel where there
+	// is one (decided once for all the jobs).
+	indexed := idx != nil && panelIndexed(w.DType) && shortRuns(idx)
 	workers := workerCount(team, threads, nJobs, work)
 	if workers <= 1 {
 		// In the calling goroutine, without the closures runJobs takes
 		// (they escape, and a predictor scores every token this way).
 		var list [panelGroup]int
 		for job := range nJobs {
-			panelJob(y, x, w, bias, idx, job, &list)
+			panelJob(y, x, w, bias, idx, indexed, job, &list)
 		}
 		return
 	}
 	runJobs(team, nJobs, workers, func() func(int) {
 		var list [panelGroup]int
-		return func(job int) { panelJob(y, x, w, bias, idx, job, &list) }
+		return func(job int) { panelJob(y, x, w, bias, idx, indexed, job, &list) }
 	})
 }
 
 // panelJob computes gemvPanels's job: the outputs of panels
 // [job·panelGroup, (job+1)·panelGroup) that exist. list is scratch.
-func panelJob(y, x []float32, w *Mat, bias []float32, idx []int32, job int, list *[panelGroup]int) {
+func panelJob(y, x []float32, w *Mat, bias []float32, idx []int32, indexed bool, job int, list *[panelGroup]int) {
 	np := panelCount(w.Out)
 	p0 := job * panelGroup
 	p1 := min(p0+panelGroup, np)
@@ -211,7 +231,7 @@ func panelJob(y, x []float32, w *Mat, bias []float32, idx []int32, job int, list
 		list[q-p0] = q
 	}
 	j0 := p0 * PanelRows
-	panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, idx, list[:p1-p0])
+	panelRows(y[j0:min(p1*PanelRows, w.Out)], x, w, bias, idx, indexed, list[:p1-p0])
 }
 
 // putOutputs writes a panel's sums src to dst, each plus its bias when

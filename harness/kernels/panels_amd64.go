@@ -57,6 +57,41 @@ func panelDot4At(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, pane
 	}
 }
 
+// panelDot4Idx continues acc[PanelRows·q+i] by Σ_j x[j]·P[kidx[j]][i] over
+// the panels P = panels[q] of w, j ascending (kidx strictly ascending,
+// within [0, w.In)), from the values acc holds: the bits of panelDot4At
+// called run by run over the same rows. It reports false, doing nothing,
+// where no indexed kernel serves w's dtype (the caller then goes run by
+// run).
+func panelDot4Idx(acc *[panelGroup * PanelRows]float32, x []float32, kidx []int32, w *Mat, panels *[panelGroup]int) bool {
+	if !panelIndexed(w.DType) {
+		return false
+	}
+	n := len(x)
+	if n == 0 {
+		return true
+	}
+	if len(kidx) != n || int(kidx[n-1]) >= w.In {
+		panic(msgScatterIdx)
+	}
+	span := w.In * PanelRows
+	var p [panelGroup]*uint16
+	for q, pn := range panels {
+		p[q] = &w.Panels.Half[pn*span : (pn+1)*span][0]
+	}
+	panelDot4F16IdxAVX512(&p, &x[0], &kidx[0], n, acc)
+	return true
+}
+
+// panelIndexed reports whether panelDot4Idx has a kernel for dt here.
+func panelIndexed(dt DType) bool { return dt == F16 && hasAVX512 && gemvAsm(F16) }
+
+// panelDot4F16IdxAVX512 is panelDot4F16AVX512 over listed panel rows
+// (panels_amd64.s).
+//
+//go:noescape
+func panelDot4F16IdxAVX512(p *[panelGroup]*uint16, x *float32, kidx *int32, n int, acc *[panelGroup * PanelRows]float32)
+
 // panelKernel names the panel kernel used for w's dtype.
 func panelKernel(dt DType) string {
 	if gemvAsm(dt) && hasAVX512 {

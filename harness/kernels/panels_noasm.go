@@ -16,3 +16,11 @@ func panelDot4At(acc *[panelGroup * PanelRows]float32, x []float32, w *Mat, pane
 
 // panelKernel names the panel kernel used for w's dtype.
 func panelKernel(DType) string { return "go 4-panel" }
+
+// panelDot4Idx has no portable kernel: the caller goes run by run.
+func panelDot4Idx(*[panelGroup * PanelRows]float32, []float32, []int32, *Mat, *[panelGroup]int) bool {
+	return false
+}
+
+// panelIndexed is false in the portable build.
+func panelIndexed(DType) bool { return false }

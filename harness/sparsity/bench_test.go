@@ -141,13 +141,13 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	u := Unit{0, MLP}
 	p := bld.Predictor(u)
 	sc := bld.scorer(u)
-	scores, ph := make([]float32, cfg.FFN), make([]float32, p.Rank)
+	scores, ph, live := make([]float32, cfg.FFN), make([]float32, p.Rank), make([]int32, p.Rank)
 	order := make([]uint64, 2*cfg.FFN)
 	k := bld.Rule(u).K
 	idx := make([]int32, 0, cfg.FFN)
 	upIdx, downIdx := make([]int32, cfg.FFN), make([]int32, cfg.FFN)
 	// Once, untimed: the copy gives the separate matrices' bits.
-	sc.scores(scores, ph, x, 1)
+	sc.scores(scores, ph, live, x, 1)
 	idx = topKInto(idx, order, scores, k)
 	for r, j := range idx {
 		upIdx[r], downIdx[r] = 2*j, 2*j+1
@@ -169,7 +169,7 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	}
 	b.Run("keep10", func(b *testing.B) {
 		for range b.N {
-			sc.scores(scores, ph, x, 1)
+			sc.scores(scores, ph, live, x, 1)
 			idx = topKInto(idx, order, scores, k)
 			for r, j := range idx { // the engine's neuronRows.index
 				upIdx[r], downIdx[r] = 2*j, 2*j+1

@@ -372,7 +372,7 @@ func TestHalfPredictorsRoundTrip(t *testing.T) {
 		got.Scores(want, hidden, x)
 		sc := b.scorer(u)
 		mine := make([]float32, 64)
-		sc.scores(mine, hidden, x, 2)
+		sc.scores(mine, hidden, make([]int32, len(hidden)), x, 2)
 		require.Equal(t, want, mine, "%s: scores from the scoring matrices", u)
 	}
 
@@ -381,4 +381,56 @@ func TestHalfPredictorsRoundTrip(t *testing.T) {
 	kept := big.clone()
 	require.False(t, big.RoundToHalf())
 	require.Equal(t, kept, big)
+}
+
+// The scorer runs a binary16 predictor's second product over the hidden
+// units ReLU left non-zero only, where the panel scatter has an indexed
+// kernel, with Predictor.Scores's bits; an unrounded (float32) predictor
+// takes the full product. Rank 64: about half the hidden units are zero.
+func TestScorerSkipsZeroHiddenUnits(t *testing.T) {
+	fx := newFixture(t, checkpoint.OPT, nil)
+	half := randomPredictor(32, 64, 64, 31)
+	require.True(t, half.RoundToHalf())
+	full := randomPredictor(32, 64, 64, 32)
+	preds := map[Unit]*Predictor{{0, MLP}: half, {1, MLP}: full}
+	m := fx.manifest(func(u Unit) Rule {
+		if u.Component == MLP {
+			return Rule{Mode: PredictorMode, K: 8, Rank: 64, Input: InputSelf}
+		}
+		return Rule{Mode: Dense}
+	})
+	b := fx.open(fx.write(m, preds))
+	r := rand.New(rand.NewPCG(33, 34))
+	zeros := 0
+	for _, u := range []Unit{{0, MLP}, {1, MLP}} {
+		sc := b.scorer(u)
+		require.Equal(t, u.Layer == 0 && kernels.PanelScatterIndexed(kernels.F16), sc.skip, "%s", u)
+		for range 20 {
+			x := make([]float32, 32)
+			for i := range x {
+				x[i] = float32(r.NormFloat64())
+			}
+			want, hidden := make([]float32, 64), make([]float32, 64)
+			b.Predictor(u).Scores(want, hidden, x)
+			for _, v := range hidden {
+				if v == 0 {
+					zeros++
+				}
+			}
+			got := make([]float32, 64)
+			sc.scores(got, make([]float32, 64), make([]int32, 64), x, 2)
+			require.Equal(t, -1, firstBitsDiff(want, got), "%s: first score whose bits differ from Predictor.Scores", u)
+		}
+	}
+	require.Greater(t, zeros, 20*64/4, "too few zero hidden units to test the skip")
+}
+
+// firstBitsDiff returns the first index where a and b differ in bits, or -1.
+func firstBitsDiff(a, b []float32) int {
+	for i := range a {
+		if math.Float32bits(a[i]) != math.Float32bits(b[i]) {
+			return i
+		}
+	}
+	return -1
 }

@@ -62,6 +62,7 @@ func (b *Build) Hook(opts HookOptions) engine.Hook {
 				s.pred = b.scorer(u)
 				if len(h.hidden) < s.pred.p.Rank {
 					h.hidden = make([]float32, s.pred.p.Rank)
+					h.live = make([]int32, s.pred.p.Rank)
 				}
 			}
 		}
@@ -84,6 +85,7 @@ type hook struct {
 	oracle      []int32
 	order       []uint64
 	mag, hidden []float32
+	live        []int32 // the predictor hidden units ReLU left non-zero (scorer.scores)
 }
 
 // selector is one unit's rule, ready to run.
@@ -104,6 +106,8 @@ type selector struct {
 type scorer struct {
 	p      *Predictor
 	w1, w2 kernels.Mat
+	skip   bool             // the panel scatter has an indexed kernel for w2: zero hidden units are skipped
+	units  []int32          // 0 … Rank-1
 	sc     *kernels.Scratch // the base model's, whose team the second product shares
 }
 
@@ -111,17 +115,32 @@ type scorer struct {
 // the base model's Scratch.
 func (b *Build) scorer(u Unit) *scorer {
 	p, m := b.preds[u], b.scoring[u]
-	return &scorer{p: p, w1: m[0], w2: m[1], sc: b.Base.Scratch()}
+	units := make([]int32, p.Rank)
+	for i := range units {
+		units[i] = int32(i)
+	}
+	// Predictor.Check (newBuild) has refused non-finite weights, so a zero
+	// hidden unit adds exactly nothing and may be skipped.
+	skip := kernels.PanelScatterIndexed(m[1].DType)
+	return &scorer{p: p, w1: m[0], w2: m[1], skip: skip, units: units, sc: b.Base.Scratch()}
 }
 
-// scores writes one token's scores into dst (hidden is rank-sized scratch).
-// The small first product runs in the calling goroutine; the second, which
-// holds most of the predictor's weights, splits its outputs over up to
-// threads goroutines.
-func (s *scorer) scores(dst, hidden, x []float32, threads int) {
+// scores writes one token's scores into dst (hidden and live are
+// rank-sized scratch). The small first product runs in the calling
+// goroutine; the second, which holds most of the predictor's weights,
+// splits its outputs over up to threads goroutines. Its inputs are ReLU
+// outputs, about half of them zero: where the panel scatter has an indexed
+// kernel it runs over the non-zero ones only (kernels.DropZeroInputs: the
+// same bits, the weights being finite).
+func (s *scorer) scores(dst, hidden []float32, live []int32, x []float32, threads int) {
 	s.sc.Linear(hidden, x, 1, &s.w1, s.p.B1, 1)
 	kernels.ReLU(hidden)
-	s.sc.Linear(dst, hidden, 1, &s.w2, s.p.B2, threads)
+	if !s.skip {
+		s.sc.Linear(dst, hidden, 1, &s.w2, s.p.B2, threads)
+		return
+	}
+	hk, kept := kernels.DropZeroInputs(hidden, s.units, live)
+	s.sc.LinearScatterInPanels(dst, hk, &s.w2, s.p.B2, kept, threads)
 }
 
 // Heads implements engine.Hook.
@@ -167,7 +186,7 @@ func (h *hook) choose(s *selector, input, prev []float32, dense func() []float32
 			x = prev
 		}
 		scores := h.mag[:s.width]
-		s.pred.scores(scores, h.hidden[:s.pred.p.Rank], x, h.threads)
+		s.pred.scores(scores, h.hidden[:s.pred.p.Rank], h.live, x, h.threads)
 		kept = topKInto(out, h.order, scores, s.rule.K)
 	default:
 		panic("sparsity: hook reached a rule that Open should have refused")

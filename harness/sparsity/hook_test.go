@@ -385,7 +385,7 @@ func TestPredictorPicksByItsScores(t *testing.T) {
 	p.Scores(scores, hidden, x)
 	require.Equal(t, TopK(nil, scores, 3), got)
 	mine := make([]float32, 64)
-	s.pred.scores(mine, hidden, x, 2)
+	s.pred.scores(mine, hidden, make([]int32, len(hidden)), x, 2)
 	require.Equal(t, scores, mine, "the hook's scorer computes Predictor.Scores bit for bit")
 	// input previous reads the other vector.
 	s.rule.Input = InputPrevious
