@@ -331,13 +331,7 @@ func TestHalfPredictorsRoundTrip(t *testing.T) {
 	require.Equal(t, orig.B2, half.B2, "biases stay float32")
 	full := randomPredictor(32, 4, 64, 22)
 	preds := map[Unit]*Predictor{{0, MLP}: half, {1, MLP}: full}
-	m := fx.manifest(func(u Unit) Rule {
-		if u.Component == MLP {
-			return Rule{Mode: PredictorMode, K: 8, Rank: 4, Input: InputSelf}
-		}
-		return Rule{Mode: Dense}
-	})
-	dir := fx.write(m, preds)
+	dir := fx.write(mlpPredictorManifest(fx, 4), preds)
 	f, err := checkpoint.Open(filepath.Join(dir, "predictors.safetensors"))
 	require.NoError(t, err)
 	dtypes := map[string]checkpoint.DType{}
@@ -393,13 +387,7 @@ func TestScorerSkipsZeroHiddenUnits(t *testing.T) {
 	require.True(t, half.RoundToHalf())
 	full := randomPredictor(32, 64, 64, 32)
 	preds := map[Unit]*Predictor{{0, MLP}: half, {1, MLP}: full}
-	m := fx.manifest(func(u Unit) Rule {
-		if u.Component == MLP {
-			return Rule{Mode: PredictorMode, K: 8, Rank: 64, Input: InputSelf}
-		}
-		return Rule{Mode: Dense}
-	})
-	b := fx.open(fx.write(m, preds))
+	b := fx.open(fx.write(mlpPredictorManifest(fx, 64), preds))
 	r := rand.New(rand.NewPCG(33, 34))
 	zeros := 0
 	for _, u := range []Unit{{0, MLP}, {1, MLP}} {
@@ -433,4 +421,15 @@ func firstBitsDiff(a, b []float32) int {
 		}
 	}
 	return -1
+}
+
+// mlpPredictorManifest is fx's manifest with a rank-rank predictor keeping
+// 8 neurons in every MLP and dense attention.
+func mlpPredictorManifest(fx *fixture, rank int) *Manifest {
+	return fx.manifest(func(u Unit) Rule {
+		if u.Component == MLP {
+			return Rule{Mode: PredictorMode, K: 8, Rank: rank, Input: InputSelf}
+		}
+		return Rule{Mode: Dense}
+	})
 }
