@@ -663,11 +663,21 @@ type attnScratch struct {
 }
 
 // grow returns b with length n, reallocated when its capacity is short.
-func grow(b []float32, n int) []float32 {
+func grow[T any](b []T, n int) []T {
 	if cap(b) < n {
-		return make([]float32, n)
+		return make([]T, n)
 	}
 	return b[:n]
+}
+
+// int32s returns n int32s of scratch: *buf grown when short (and kept
+// there), or a fresh slice when buf is nil.
+func int32s(buf *[]int32, n int) []int32 {
+	if buf == nil {
+		return make([]int32, n)
+	}
+	*buf = grow(*buf, n)
+	return *buf
 }
 
 // attendRows computes every row's attention output (all heads) into st.a,
@@ -977,7 +987,7 @@ func (m *Model) mlpRow(st *state, L *layer, idx [][]int32, r int, y []float32, n
 		} else {
 			kept := idx[r]
 			if L.downFinite {
-				hk, kept = kernels.DropZeroInputs(hk, kept, make([]int32, len(kept)))
+				hk, kept = kernels.DropZeroInputs(hk, kept, int32s(nbuf, len(kept)))
 			}
 			m.scratch.LinearScatterInParallel(y, hk, L.down, L.downB, kept, m.threads)
 		}

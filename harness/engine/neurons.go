@@ -93,19 +93,9 @@ func neuronMajorInto(dst, w *kernels.Mat, p, parts int, column bool) {
 // *buf (grown when short, and kept there) or, when buf is nil, a fresh
 // slice.
 func (n *neuronRows) index(buf *[]int32, idx []int32, part int32) []int32 {
-	var out []int32
-	if buf != nil {
-		out = *buf
-	}
-	if cap(out) < len(idx) {
-		out = make([]int32, len(idx))
-	}
-	out = out[:len(idx)]
+	out := int32s(buf, len(idx))
 	for r, j := range idx {
 		out[r] = int32(n.parts)*j + part
-	}
-	if buf != nil {
-		*buf = out
 	}
 	return out
 }

@@ -61,6 +61,15 @@ func randMat(r *rand.Rand, dt DType, out, in int) *Mat {
 	return m
 }
 
+// normals returns n standard normal values.
+func normals(r *rand.Rand, n int) []float32 {
+	v := make([]float32, n)
+	for i := range v {
+		v[i] = float32(r.NormFloat64())
+	}
+	return v
+}
+
 // setStored writes v (rounded to the storage dtype) at storage element p, or
 // the raw half pattern h when the dtype is F16 or BF16 and h != 0.
 func setStored(m *Mat, p int, v float32, h uint16) {
@@ -116,14 +125,8 @@ func TestDot8RowsMatchesTwinAndNaive(t *testing.T) {
 		for _, n := range ns {
 			const out = 21
 			w := randMat(r, dt, out, n)
-			x := make([]float32, n)
-			for k := range x {
-				x[k] = float32(r.NormFloat64())
-			}
-			var acc0 [8]float32
-			for q := range acc0 {
-				acc0[q] = float32(r.NormFloat64())
-			}
+			x := normals(r, n)
+			acc0 := [8]float32(normals(r, 8))
 			contiguous := [8]int{3, 4, 5, 6, 7, 8, 9, 10}
 			checkDot8(t, fmt.Sprintf("%v n%d contiguous", dt, n), w, x, contiguous, [8]float32{})
 			var scattered [8]int
@@ -308,17 +311,13 @@ func TestDot16And32RowsMatchNaive(t *testing.T) {
 		for _, n := range ns {
 			const out = 45
 			w := randMat(r, dt, out, n)
-			x := make([]float32, n)
-			for k := range x {
-				x[k] = float32(r.NormFloat64())
-			}
+			x := normals(r, n)
 			for _, width := range []int{16, 32} {
 				rows := make([]int, width)
-				acc0 := make([]float32, width)
 				for q := range rows {
 					rows[q] = r.IntN(out)
-					acc0[q] = float32(r.NormFloat64())
 				}
+				acc0 := normals(r, width)
 				rows[width-1] = rows[3] // a repeated row
 				checkWide(t, fmt.Sprintf("%v n%d width %d", dt, n, width), w, x, rows, acc0)
 				for q := range rows {
@@ -331,10 +330,7 @@ func TestDot16And32RowsMatchNaive(t *testing.T) {
 		// inside blocks and in the tail of n = 43.
 		const n = 43
 		w := randMat(r, dt, 32, n)
-		x := make([]float32, n)
-		for k := range x {
-			x[k] = float32(r.NormFloat64())
-		}
+		x := normals(r, n)
 		inf, nan := float32(math.Inf(1)), float32(math.NaN())
 		setStored(w, 5*n+3, nan, 0)
 		setStored(w, 13*n+41, inf, 0)

@@ -79,7 +79,7 @@ func panelDot4Idx(acc *[panelGroup * PanelRows]float32, x []float32, kidx []int3
 	for q, pn := range panels {
 		p[q] = &w.Panels.Half[pn*span : (pn+1)*span][0]
 	}
-	panelDot4F16IdxAVX512(&p, &x[0], &kidx[0], n, acc)
+	panelDot4F16IdxAVX512(&p, &x[0], n, acc, &kidx[0])
 	return true
 }
 
@@ -87,10 +87,11 @@ func panelDot4Idx(acc *[panelGroup * PanelRows]float32, x []float32, kidx []int3
 func panelIndexed(dt DType) bool { return dt == F16 && hasAVX512 && gemvAsm(F16) }
 
 // panelDot4F16IdxAVX512 is panelDot4F16AVX512 over listed panel rows
-// (panels_amd64.s).
+// (panels_amd64.s; kidx last, so the other arguments sit where the panel
+// kernels' shared macros read them).
 //
 //go:noescape
-func panelDot4F16IdxAVX512(p *[panelGroup]*uint16, x *float32, kidx *int32, n int, acc *[panelGroup * PanelRows]float32)
+func panelDot4F16IdxAVX512(p *[panelGroup]*uint16, x *float32, n int, acc *[panelGroup * PanelRows]float32, kidx *int32)
 
 // panelKernel names the panel kernel used for w's dtype.
 func panelKernel(dt DType) string {

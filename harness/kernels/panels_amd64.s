@@ -239,27 +239,15 @@ bf16z:
 	STOREPANELS512
 	RET
 
-// func panelDot4F16IdxAVX512(p *[4]*uint16, x *float32, kidx *int32, n int, acc *[64]float32)
+// func panelDot4F16IdxAVX512(p *[4]*uint16, x *float32, n int, acc *[64]float32, kidx *int32)
 //
 // panelDot4F16AVX512 over the panel rows kidx[0] … kidx[n-1] (ascending)
 // instead of 0 … n-1, x[j] being row kidx[j]'s input: acc[16q+i] +=
 // x[j]·P_q[kidx[j]][i] for j ascending, VMULPS then VADDPS, so the bits of
 // the run-by-run calls over the same rows.
 TEXT ·panelDot4F16IdxAVX512(SB), NOSPLIT, $0-40
-	MOVQ    p+0(FP), R13
-	MOVQ    0(R13), AX
-	MOVQ    8(R13), BX
-	MOVQ    16(R13), R8
-	MOVQ    24(R13), R9
-	MOVQ    x+8(FP), SI
-	MOVQ    kidx+16(FP), R10
-	MOVQ    n+24(FP), CX
-	MOVQ    acc+32(FP), R13
-	VMOVUPS 0(R13), Z0
-	VMOVUPS 64(R13), Z1
-	VMOVUPS 128(R13), Z2
-	VMOVUPS 192(R13), Z3
-	XORQ    DI, DI
+	LOADPANELS512
+	MOVQ kidx+32(FP), R10
 
 f16idx:
 	MOVLQSX (R10)(DI*4), DX
@@ -269,9 +257,5 @@ f16idx:
 	CMPQ    DI, CX
 	JLT     f16idx
 
-	VMOVUPS Z0, 0(R13)
-	VMOVUPS Z1, 64(R13)
-	VMOVUPS Z2, 128(R13)
-	VMOVUPS Z3, 192(R13)
-	VZEROUPPER
+	STOREPANELS512
 	RET

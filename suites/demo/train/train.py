@@ -595,12 +595,11 @@ def run(args):
             do_eval(step + 1, lr_now)
             save_state(step + 1)
 
-    if args.select == "last":
-        chosen = (args.steps, evals[-1]["valid_loss"] if evals else None,
-                  {k: v.detach().clone() for k, v in model.state_dict().items()})
+    if args.select == "last":  # the model holds them already
+        chosen = (args.steps, evals[-1]["valid_loss"] if evals else None, model.state_dict())
     else:
         chosen = best
-    model.load_state_dict(chosen[2])
+        model.load_state_dict(best[2])
     names = [n for n, _ in model.named_parameters()]
     write_atomic(os.path.join(args.out, "model.safetensors"), safetensors_bytes({n: chosen[2][n] for n in names}))
     write_atomic(os.path.join(args.out, "config.json"), (json.dumps(opt_config(args), indent=2) + "\n").encode())
