@@ -14,6 +14,7 @@ import (
 	"sparsegate/harness/checkpoint"
 	"sparsegate/harness/kernels"
 	"sparsegate/harness/tokenize"
+	"sparsegate/harness/weightmem"
 )
 
 // A Model is a loaded checkpoint ready to run. It is safe for concurrent use
@@ -27,6 +28,7 @@ type Model struct {
 	Tokenizer *tokenize.Tokenizer
 
 	weights  *checkpoint.Weights
+	mem      *weightmem.Arena // the panel, neuron-major and widened copies; unmapped by Close
 	threads  int
 	borrowed bool // a Hybrid: the weights belong to other models
 
@@ -113,7 +115,7 @@ func Load(dir string, opts Options) (*Model, error) {
 	if err != nil {
 		return nil, err
 	}
-	m := &Model{Config: cfg, Dir: dir, weights: w, threads: opts.Threads, scratch: new(kernels.Scratch), attn: new(sync.Pool), kvFree: new(sync.Pool), states: new(sync.Pool)}
+	m := &Model{Config: cfg, Dir: dir, weights: w, mem: weightmem.New(), threads: opts.Threads, scratch: new(kernels.Scratch), attn: new(sync.Pool), kvFree: new(sync.Pool), states: new(sync.Pool)}
 	if m.threads <= 0 {
 		m.threads = runtime.NumCPU()
 	}
@@ -123,18 +125,18 @@ func Load(dir string, opts Options) (*Model, error) {
 		m.scratch.Team = kernels.NewTeam(m.threads - 1)
 	}
 	if err := m.bind(); err != nil {
-		w.Close()
+		m.Close()
 		return nil, err
 	}
 	if opts.NeuronMajor {
 		parallelJobs(len(m.layers), m.threads, func(next func() (int, bool)) {
 			for i, ok := next(); ok; i, ok = next() {
 				L := &m.layers[i]
-				L.neurons = newNeuronRows(L.up, L.gate, L.down)
+				L.neurons = newNeuronRows(m.mem, L.up, L.gate, L.down)
 				L.downFinite = L.down.Finite()
 				if o := L.o; o != nil && !o.Transposed && opts.NoPanels {
 					// With panels, kept heads read o's panels instead.
-					L.oT = neuronMajor(o)
+					L.oT = neuronMajor(m.mem, o)
 				}
 			}
 		})
@@ -146,7 +148,7 @@ func Load(dir string, opts Options) (*Model, error) {
 	if !opts.NoTokenizer && hasTokenizer(dir) {
 		tok, err := tokenize.LoadDir(dir)
 		if err != nil {
-			w.Close()
+			m.Close()
 			return nil, err
 		}
 		if tok.VocabSize() > cfg.VocabSize {
@@ -186,7 +188,11 @@ func (m *Model) Close() error {
 		return nil
 	}
 	m.scratch.Team.Close()
-	return m.weights.Close()
+	err := m.weights.Close()
+	if merr := m.mem.Close(); err == nil {
+		err = merr
+	}
+	return err
 }
 
 // Scratch returns the packing buffers and helper team the model's products
@@ -488,9 +494,9 @@ func (m *Model) packPanels(widen bool) {
 	parallelJobs(len(mats), m.threads, func(next func() (int, bool)) {
 		for i, ok := next(); ok; i, ok = next() {
 			if widen {
-				widenMat(mats[i])
+				widenMat(m.mem, mats[i])
 			}
-			panels[i] = kernels.PackPanels(mats[i])
+			panels[i] = kernels.PackPanelsIn(mats[i], m.mem)
 			if t := m.sources[mats[i]]; t != nil {
 				t.Release()
 			}
@@ -501,9 +507,10 @@ func (m *Model) packPanels(widen bool) {
 	}
 }
 
-// widenMat replaces w's half-precision storage by the same values in f32.
-func widenMat(w *kernels.Mat) {
-	f := make([]float32, len(w.Half))
+// widenMat replaces w's half-precision storage by the same values in f32,
+// held in mem.
+func widenMat(mem *weightmem.Arena, w *kernels.Mat) {
+	f := mem.Float32s(len(w.Half))
 	if w.DType == kernels.F16 {
 		kernels.F16ToF32(f, w.Half)
 	} else {
@@ -513,11 +520,11 @@ func widenMat(w *kernels.Mat) {
 }
 
 // neuronMajor copies an output-major matrix into In×Out storage (the
-// Transposed layout), keeping its dtype.
-func neuronMajor(w *kernels.Mat) *kernels.Mat {
+// Transposed layout) held in mem, keeping its dtype.
+func neuronMajor(mem *weightmem.Arena, w *kernels.Mat) *kernels.Mat {
 	t := &kernels.Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
 	if w.DType == kernels.F32 {
-		t.F32 = make([]float32, len(w.F32))
+		t.F32 = mem.Float32s(len(w.F32))
 		for j := 0; j < w.Out; j++ {
 			for k := 0; k < w.In; k++ {
 				t.F32[k*w.Out+j] = w.F32[j*w.In+k]
@@ -525,7 +532,7 @@ func neuronMajor(w *kernels.Mat) *kernels.Mat {
 		}
 		return t
 	}
-	t.Half = make([]uint16, len(w.Half))
+	t.Half = mem.Uint16s(len(w.Half))
 	for j := 0; j < w.Out; j++ {
 		for k := 0; k < w.In; k++ {
 			t.Half[k*w.Out+j] = w.Half[j*w.In+k]

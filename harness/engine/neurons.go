@@ -1,6 +1,9 @@
 package engine
 
-import "sparsegate/harness/kernels"
+import (
+	"sparsegate/harness/kernels"
+	"sparsegate/harness/weightmem"
+)
 
 // neuronRows is a layer's MLP weights copied neuron by neuron
 // (Options.NeuronMajor): for neuron j, its gate row (SwiGLU only), its up
@@ -24,10 +27,10 @@ type neuronRows struct {
 }
 
 // newNeuronRows copies up, gate (nil without one) and down into a
-// neuronRows, in their stored dtype. It returns nil when the three do not
+// neuronRows held in mem, in their stored dtype. It returns nil when the three do not
 // share a dtype, which the sparse path then handles with the matrices as
 // stored.
-func newNeuronRows(up, gate, down *kernels.Mat) *neuronRows {
+func newNeuronRows(mem *weightmem.Arena, up, gate, down *kernels.Mat) *neuronRows {
 	if up == nil || down == nil || up.DType != down.DType || gate != nil && gate.DType != up.DType {
 		return nil
 	}
@@ -41,9 +44,9 @@ func newNeuronRows(up, gate, down *kernels.Mat) *neuronRows {
 	rows := n.parts * ffn
 	n.rows = &kernels.Mat{DType: up.DType, Out: rows, In: d}
 	if up.DType == kernels.F32 {
-		n.rows.F32 = make([]float32, rows*d)
+		n.rows.F32 = mem.Float32s(rows * d)
 	} else {
-		n.rows.Half = make([]uint16, rows*d)
+		n.rows.Half = mem.Uint16s(rows * d)
 	}
 	for p, w := range mats {
 		neuronMajorInto(n.rows, w, p, n.parts, w == down)

@@ -30,17 +30,33 @@ func PanelBytes(w *Mat) int64 {
 	return 2 * n
 }
 
+// Allocator hands out zeroed slices for long-lived weight copies (the
+// engine's is a weightmem.Arena, which maps them on huge pages).
+type Allocator interface {
+	Uint16s(n int) []uint16
+	Float32s(n int) []float32
+}
+
 // PackPanels returns the k-major panel copy of w, in w's stored dtype (no
 // value is converted). w may be stored Out×In or Transposed; w.Panels is
 // ignored and left as it is.
-func PackPanels(w *Mat) *Panels {
+func PackPanels(w *Mat) *Panels { return PackPanelsIn(w, nil) }
+
+// PackPanelsIn is PackPanels with the copy's storage from a (the Go heap
+// when a is nil).
+func PackPanelsIn(w *Mat, a Allocator) *Panels {
 	w.Check()
 	np, in := panelCount(w.Out), w.In
 	n := np * in * PanelRows
 	p := new(Panels)
-	if w.DType == F32 {
+	switch {
+	case w.DType == F32 && a != nil:
+		p.F32 = a.Float32s(n)
+	case w.DType == F32:
 		p.F32 = make([]float32, n)
-	} else {
+	case a != nil:
+		p.Half = a.Uint16s(n)
+	default:
 		p.Half = make([]uint16, n)
 	}
 	for j := 0; j < w.Out; j++ {
