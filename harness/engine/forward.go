@@ -296,7 +296,8 @@ type state struct {
 // means first-touch page faults, which measured a fifth of a sparse decode
 // step (PERF_NOTES.md, session 8).
 type rowScratch struct {
-	q, k, v, fk, fv, scores []float32
+	q, k, v, fk, fv         []float32
+	scores                  [][]float32 // one per worker of attendHeads
 	present                 []bool
 	idxQ, idxKV, idxO, nidx []int32
 }
@@ -488,7 +489,6 @@ func (m *Model) attentionHooked(st *state, li int) {
 		one = m.newRowScratch()
 	}
 	q, k, v, present := one.q, one.k, one.v, one.present
-	scores := one.scores
 	for r := 0; r < R; r++ {
 		s := st.sessions[st.rows[r].seq]
 		pos := st.rows[r].pos
@@ -530,13 +530,7 @@ func (m *Model) attentionHooked(st *state, li int) {
 			s.appendKV(li, fk, fv, present)
 		}
 		a := st.a[r*qd : (r+1)*qd]
-		for i := 0; i < nq; i++ {
-			hh := i
-			if heads != nil {
-				hh = int(heads[i])
-			}
-			scores = m.attendHead(a[i*hd:(i+1)*hd], q[i*hd:(i+1)*hd], s, li, hh, pos+1, scores)
-		}
+		m.attendHeads(a, q, s, li, pos+1, heads, nq, one)
 		if heads == nil {
 			m.scratch.Linear(y, a, 1, L.o, L.oB, m.threads)
 		} else {
@@ -555,7 +549,6 @@ func (m *Model) attentionHooked(st *state, li int) {
 		xr := st.x[r*d : (r+1)*d]
 		kernels.Add(xr, xr, y)
 	}
-	one.scores = scores // kept for the next layer's and step's calls
 }
 
 // projectQKV computes one token's queries for the kept heads and keys and
@@ -603,6 +596,32 @@ func (m *Model) projectQKV(L *layer, h, q, k, v []float32, heads, groups []int32
 		{Y: k[:len(kc)], W: L.k, Bias: L.kB, Idx: kc},
 		{Y: v[:len(kc)], W: L.v, Bias: L.vB, Idx: kc},
 	}, m.threads)
+}
+
+// attendHeads runs one row's attention for nq query heads: heads[i] (i when
+// heads is nil), reading q and writing a at place i. The heads are shared
+// over the model's threads (each is independent of the others, so the bits
+// do not depend on threads); one holds each worker's score buffer, kept for
+// the next call. A single-token step would otherwise attend on one thread
+// while the team's helper waits, its reads of the cached keys and values
+// latency-bound.
+func (m *Model) attendHeads(a, q []float32, s *Session, li, n int, heads []int32, nq int, one *rowScratch) {
+	hd := m.Config.HeadDim
+	workers := max(1, min(m.threads, nq))
+	for len(one.scores) < workers {
+		one.scores = append(one.scores, nil)
+	}
+	var id atomic.Int32
+	m.scratch.RunJobs(nq, workers, func() func(int) {
+		buf := &one.scores[id.Add(1)-1]
+		return func(i int) {
+			hh := i
+			if heads != nil {
+				hh = int(heads[i])
+			}
+			*buf = m.attendHead(a[i*hd:(i+1)*hd], q[i*hd:(i+1)*hd], s, li, hh, n, *buf)
+		}
+	})
 }
 
 // attendHead computes one query head's causal softmax attention over the
@@ -709,11 +728,12 @@ func (m *Model) attendRowsKept(st *state, li int, kept [][]int32) {
 		}
 		keeps = func(r, h int) bool { return mask[r*c.Heads+h] }
 	}
-	if R == 1 && keeps == nil { // a decode step: no jobs to share out
-		var scores []float32
-		for h := 0; h < c.Heads; h++ {
-			scores = m.attendHead(st.a[h*hd:(h+1)*hd], st.q[h*hd:(h+1)*hd], st.sessions[st.rows[0].seq], li, h, st.rows[0].pos+1, scores)
+	if R == 1 && keeps == nil { // a decode step: its heads shared out
+		one := st.one
+		if one == nil {
+			one = m.newRowScratch()
 		}
+		m.attendHeads(st.a, st.q, st.sessions[st.rows[0].seq], li, st.rows[0].pos+1, nil, c.Heads, one)
 		return
 	}
 	type job struct{ r0, r1, h int } // h < 0: row r0 alone, every head

@@ -28,6 +28,17 @@ func workerCount(team *Team, threads, nJobs, work int) int {
 	return w
 }
 
+// RunJobs runs jobs 0…nJobs-1 on up to threads goroutines, the caller and
+// s's Team helpers when they are free (fresh goroutines otherwise), as the
+// products share their work: newWorker sets each worker up once (its
+// scratch) and returns the function that runs one job. Jobs must not depend
+// on which worker runs them or in what order, so that results do not depend
+// on threads. For work outside the products that a single-token step would
+// otherwise run on one thread (a decode row's attention heads).
+func (s *Scratch) RunJobs(nJobs, threads int, newWorker func() func(job int)) {
+	runJobs(s.team(), nJobs, max(1, min(threads, nJobs)), newWorker)
+}
+
 // runJobs runs jobs 0…nJobs-1 on workers goroutines: the caller and
 // helpers of team when it has them free, fresh goroutines otherwise. Each
 // worker is set up once by newWorker (for its scratch buffers) and then
