@@ -45,27 +45,23 @@ func New() *Arena { return new(Arena) }
 
 // Uint16s returns a zeroed slice of n values (binary16 or bfloat16 bit
 // patterns).
-func (a *Arena) Uint16s(n int) []uint16 {
-	if n == 0 {
-		return []uint16{}
-	}
-	b := a.bytes(n * 2)
-	if b == nil {
-		return make([]uint16, n)
-	}
-	return unsafe.Slice((*uint16)(unsafe.Pointer(&b[0])), n)
-}
+func (a *Arena) Uint16s(n int) []uint16 { return carve[uint16](a, n) }
 
 // Float32s returns a zeroed slice of n values.
-func (a *Arena) Float32s(n int) []float32 {
+func (a *Arena) Float32s(n int) []float32 { return carve[float32](a, n) }
+
+// carve returns a zeroed slice of n values of T from a, or from the heap
+// when a has no mapping to give.
+func carve[T uint16 | float32](a *Arena, n int) []T {
 	if n == 0 {
-		return []float32{}
+		return []T{}
 	}
-	b := a.bytes(n * 4)
+	var zero T
+	b := a.bytes(n * int(unsafe.Sizeof(zero)))
 	if b == nil {
-		return make([]float32, n)
+		return make([]T, n)
 	}
-	return unsafe.Slice((*float32)(unsafe.Pointer(&b[0])), n)
+	return unsafe.Slice((*T)(unsafe.Pointer(&b[0])), n)
 }
 
 // MappedBytes is the address space the Arena has mapped so far (resident
