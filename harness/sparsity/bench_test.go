@@ -223,6 +223,47 @@ func BenchmarkDecodeStep(b *testing.B) {
 	}
 }
 
+// BenchmarkDecodeSteady times single-token steps with nothing else between
+// them: each session decodes 64 tokens from an empty cache (no prompt), then
+// the next starts, so the timed loop is decode alone, dense and with the
+// same predictors as BenchmarkDecodeStep. It shows the steady decode ratio,
+// which BenchmarkDecodeStep's untimed prompts between its steps disturb (a
+// prefill leaves the caches and the collector in another state); the
+// issue's figure remains BenchmarkDecodeStep's.
+func BenchmarkDecodeSteady(b *testing.B) {
+	m := benchModel(b)
+	for _, c := range []struct {
+		name string
+		hook func() engine.Hook
+	}{
+		{"dense", func() engine.Hook { return nil }},
+		{"mlp10_heads50", func() engine.Hook { return predictorBuild(b, m, 0.1, 0.5).Hook(HookOptions{}) }},
+	} {
+		b.Run(c.name, func(b *testing.B) {
+			hook := c.hook()
+			logits := make([]float32, m.Config.VocabSize)
+			var s *engine.Session
+			b.ResetTimer()
+			for i := range b.N {
+				if i%64 == 0 {
+					if s != nil {
+						s.Close()
+					}
+					s = m.NewSession()
+				}
+				h, err := m.Forward([]*engine.Session{s}, [][]int{{(i*31 + 5) % m.Config.VocabSize}}, hook)
+				if err != nil {
+					b.Fatal(err)
+				}
+				m.Logits(logits, h, 1)
+			}
+			b.StopTimer()
+			s.Close()
+			b.ReportMetric(float64(b.N)/b.Elapsed().Seconds(), "tok/s")
+		})
+	}
+}
+
 // BenchmarkPrefillSparse times prefill of 1, 8, 64 and 512 tokens, dense and
 // with 10% MLP / 50% heads kept: as the batch grows, the engine switches
 // blocks to dense products once rows keep most neurons, so sparse prefill
