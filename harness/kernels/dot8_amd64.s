@@ -312,8 +312,11 @@ bf16loop16:
 	ROWPAIR(OFF+56, OFF+120, X7, Y7)
 
 // GROUP16MAC transposes Y0 … Y7 (GROUP16LOAD's layout), widens each k's
-// sixteen values and adds x[k+j]·column_j (x broadcast in Z24 … Z31) into
-// ACC for j = 0 … 7, in order. Clobbers Y0 … Y15 (and Z0 … Z7).
+// sixteen values and adds x[k+j]·column_j into ACC for j = 0 … 7, in
+// order, each x[k+j] broadcast from SI+4·DI within its VMULPS (the EVEX
+// embedded broadcast: on AMD Zen 4 a VBROADCASTSS into a 512-bit register
+// costs vector-pipe slots, which bind this kernel). Clobbers Y0 … Y15 (and
+// Z0 … Z7).
 #define GROUP16MAC(ACC) \
 	VPUNPCKLWD   Y1, Y0, Y8; \
 	VPUNPCKHWD   Y1, Y0, Y9; \
@@ -347,14 +350,14 @@ bf16loop16:
 	VCVTPH2PS    Y13, Z5; \
 	VCVTPH2PS    Y14, Z6; \
 	VCVTPH2PS    Y15, Z7; \
-	VMULPS       Z24, Z0, Z0; \
-	VMULPS       Z25, Z1, Z1; \
-	VMULPS       Z26, Z2, Z2; \
-	VMULPS       Z27, Z3, Z3; \
-	VMULPS       Z28, Z4, Z4; \
-	VMULPS       Z29, Z5, Z5; \
-	VMULPS       Z30, Z6, Z6; \
-	VMULPS       Z31, Z7, Z7; \
+	VMULPS.BCST  0(SI)(DI*4), Z0, Z0; \
+	VMULPS.BCST  4(SI)(DI*4), Z1, Z1; \
+	VMULPS.BCST  8(SI)(DI*4), Z2, Z2; \
+	VMULPS.BCST  12(SI)(DI*4), Z3, Z3; \
+	VMULPS.BCST  16(SI)(DI*4), Z4, Z4; \
+	VMULPS.BCST  20(SI)(DI*4), Z5, Z5; \
+	VMULPS.BCST  24(SI)(DI*4), Z6, Z6; \
+	VMULPS.BCST  28(SI)(DI*4), Z7, Z7; \
 	VADDPS       Z0, ACC, ACC; \
 	VADDPS       Z1, ACC, ACC; \
 	VADDPS       Z2, ACC, ACC; \
@@ -375,14 +378,6 @@ TEXT ·dot32F16AVX512(SB), NOSPLIT, $0-32
 	XORQ    DI, DI
 
 f16loop32:
-	VBROADCASTSS 0(SI)(DI*4), Z24
-	VBROADCASTSS 4(SI)(DI*4), Z25
-	VBROADCASTSS 8(SI)(DI*4), Z26
-	VBROADCASTSS 12(SI)(DI*4), Z27
-	VBROADCASTSS 16(SI)(DI*4), Z28
-	VBROADCASTSS 20(SI)(DI*4), Z29
-	VBROADCASTSS 24(SI)(DI*4), Z30
-	VBROADCASTSS 28(SI)(DI*4), Z31
 	GROUP16LOAD(0)
 	GROUP16MAC(Z16)
 	GROUP16LOAD(128)
