@@ -287,8 +287,8 @@ bf16loop16:
 // and three rounds of in-lane unpacks (words, double words, quad words)
 // transpose both 8×8 halves at once, leaving one register per k with
 // w_0[k] … w_7[k] in its low half and w_8[k] … w_15[k] in its high half;
-// VCVTPH2PS widens it to sixteen lanes in row order. The x values of the
-// block are broadcast once (Z24 … Z31) for both groups.
+// VCVTPH2PS widens it to sixteen lanes in row order. Each multiply reads
+// its x value through an embedded broadcast (GROUP16MAC).
 
 // ROWPAIR loads eight k (at element DI) of the rows whose pointers sit at
 // byte offsets LO and HI of the rows array (R13) into the low and high
