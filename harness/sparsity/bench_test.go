@@ -182,18 +182,28 @@ func BenchmarkMLPBlockDecode(b *testing.B) {
 	})
 }
 
+// decodeCase is one side of the decode benchmarks: its name and how to make
+// its hook (nil for dense).
+type decodeCase struct {
+	name string
+	hook func() engine.Hook
+}
+
+// decodeCases are the decode benchmarks' two sides: dense, and predictors
+// keeping 10% of the MLP neurons and 50% of the heads.
+func decodeCases(b *testing.B, m *engine.Model) []decodeCase {
+	return []decodeCase{
+		{"dense", func() engine.Hook { return nil }},
+		{"mlp10_heads50", func() engine.Hook { return predictorBuild(b, m, 0.1, 0.5).Hook(HookOptions{}) }},
+	}
+}
+
 // BenchmarkDecodeStep times whole decode steps (after a 64-token prompt)
 // through the engine: dense, and with 10% of the MLP neurons and 50% of the
 // heads kept by predictors (their cost included).
 func BenchmarkDecodeStep(b *testing.B) {
 	m := benchModel(b)
-	for _, c := range []struct {
-		name string
-		hook func() engine.Hook
-	}{
-		{"dense", func() engine.Hook { return nil }},
-		{"mlp10_heads50", func() engine.Hook { return predictorBuild(b, m, 0.1, 0.5).Hook(HookOptions{}) }},
-	} {
+	for _, c := range decodeCases(b, m) {
 		b.Run(c.name, func(b *testing.B) {
 			hook := c.hook()
 			prompt := make([]int, 64)
@@ -232,13 +242,7 @@ func BenchmarkDecodeStep(b *testing.B) {
 // issue's figure remains BenchmarkDecodeStep's.
 func BenchmarkDecodeSteady(b *testing.B) {
 	m := benchModel(b)
-	for _, c := range []struct {
-		name string
-		hook func() engine.Hook
-	}{
-		{"dense", func() engine.Hook { return nil }},
-		{"mlp10_heads50", func() engine.Hook { return predictorBuild(b, m, 0.1, 0.5).Hook(HookOptions{}) }},
-	} {
+	for _, c := range decodeCases(b, m) {
 		b.Run(c.name, func(b *testing.B) {
 			hook := c.hook()
 			logits := make([]float32, m.Config.VocabSize)
