@@ -52,6 +52,12 @@ func (s *Scratch) LinearScatterInParallel(y, h []float32, w *Mat, bias []float32
 	checkScatter(y, h, w, bias, idx)
 	jobs := (w.Out + gemvColsJob - 1) / gemvColsJob
 	workers := workerCount(s.team(), threads, jobs, len(idx)*w.Out)
+	if workers <= 1 {
+		// In the calling goroutine, without the closures runJobs takes
+		// (they escape, and a predictor scores every token this way).
+		LinearScatterIn(y, h, w, bias, idx)
+		return
+	}
 	runJobs(s.team(), jobs, workers, func() func(int) {
 		var buf []float32 // conversion scratch; binary16 rows need none
 		if w.DType != F16 {

@@ -377,10 +377,10 @@ func TestHalfPredictorsRoundTrip(t *testing.T) {
 	require.Equal(t, kept, big)
 }
 
-// The scorer runs a binary16 predictor's second product over the hidden
-// units ReLU left non-zero only, where the panel scatter has an indexed
-// kernel, with Predictor.Scores's bits; an unrounded (float32) predictor
-// takes the full product. Rank 64: about half the hidden units are zero.
+// The scorer runs a predictor's second product over the hidden units ReLU
+// left non-zero only, from its input-major copy, with Predictor.Scores's
+// bits, for a binary16 predictor and an unrounded (float32) one. Rank 64:
+// about half the hidden units are zero.
 func TestScorerSkipsZeroHiddenUnits(t *testing.T) {
 	fx := newFixture(t, checkpoint.OPT, nil)
 	half := randomPredictor(32, 64, 64, 31)
@@ -392,7 +392,8 @@ func TestScorerSkipsZeroHiddenUnits(t *testing.T) {
 	zeros := 0
 	for _, u := range []Unit{{0, MLP}, {1, MLP}} {
 		sc := b.scorer(u)
-		require.Equal(t, u.Layer == 0 && kernels.PanelScatterIndexed(kernels.F16), sc.skip, "%s", u)
+		require.True(t, sc.w2.Transposed, "%s: the second product's input-major copy", u)
+		require.Equal(t, map[bool]kernels.DType{true: kernels.F16, false: kernels.F32}[u.Layer == 0], sc.w2.DType, "%s", u)
 		for range 20 {
 			x := make([]float32, 32)
 			for i := range x {

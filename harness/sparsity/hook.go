@@ -104,11 +104,11 @@ type selector struct {
 // and every Linear path gives the same bits (the kernels' contract),
 // whatever the thread count.
 type scorer struct {
-	p      *Predictor
-	w1, w2 kernels.Mat
-	skip   bool             // the panel scatter has an indexed kernel for w2: zero hidden units are skipped
-	units  []int32          // 0 … Rank-1
-	sc     *kernels.Scratch // the base model's, whose team the second product shares
+	p     *Predictor
+	w1    kernels.Mat      // Rank×In, with its panel copy
+	w2    kernels.Mat      // Out×Rank stored input-major (Transposed)
+	units []int32          // 0 … Rank-1
+	sc    *kernels.Scratch // the base model's, whose team the second product shares
 }
 
 // scorer returns unit u's predictor bound to its scoring matrices and to
@@ -119,28 +119,22 @@ func (b *Build) scorer(u Unit) *scorer {
 	for i := range units {
 		units[i] = int32(i)
 	}
-	// Predictor.Check (newBuild) has refused non-finite weights, so a zero
-	// hidden unit adds exactly nothing and may be skipped.
-	skip := kernels.PanelScatterIndexed(m[1].DType)
-	return &scorer{p: p, w1: m[0], w2: m[1], skip: skip, units: units, sc: b.Base.Scratch()}
+	return &scorer{p: p, w1: m[0], w2: m[1], units: units, sc: b.Base.Scratch()}
 }
 
 // scores writes one token's scores into dst (hidden and live are
 // rank-sized scratch). The small first product runs in the calling
 // goroutine; the second, which holds most of the predictor's weights,
 // splits its outputs over up to threads goroutines. Its inputs are ReLU
-// outputs, about half of them zero: where the panel scatter has an indexed
-// kernel it runs over the non-zero ones only (kernels.DropZeroInputs: the
-// same bits, the weights being finite).
+// outputs, about half of them zero: it runs over the non-zero ones only
+// (kernels.DropZeroInputs; the same bits, since Predictor.Check, run by
+// newBuild, has refused non-finite weights), reading each one's run of
+// weights as one stream.
 func (s *scorer) scores(dst, hidden []float32, live []int32, x []float32, threads int) {
 	s.sc.Linear(hidden, x, 1, &s.w1, s.p.B1, 1)
 	kernels.ReLU(hidden)
-	if !s.skip {
-		s.sc.Linear(dst, hidden, 1, &s.w2, s.p.B2, threads)
-		return
-	}
 	hk, kept := kernels.DropZeroInputs(hidden, s.units, live)
-	s.sc.LinearScatterInPanels(dst, hk, &s.w2, s.p.B2, kept, threads)
+	s.sc.LinearScatterInParallel(dst, hk, &s.w2, s.p.B2, kept, threads)
 }
 
 // Heads implements engine.Hook.
