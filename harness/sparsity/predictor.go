@@ -100,11 +100,11 @@ func (p *Predictor) RoundToHalf() bool {
 
 // scoringMats returns the predictor's two matrices as the hooks score with
 // them: in binary16 when every weight is a binary16 value (the same bits as
-// the float32 matrices of mats, half the bytes to stream). The first, read
-// whole for every token, carries its panel copy. The second is stored input
-// by input (Transposed: hidden unit r's Out weights one contiguous run), so
-// that a token's scores read only the runs of the hidden units ReLU left
-// non-zero, each as one stream (scorer.scores).
+// the float32 matrices of mats, half the bytes to stream), each with its
+// panel copy, which the batched products of a prefill read. The second is
+// stored input by input (Transposed: hidden unit r's Out weights one
+// contiguous run), so that a single token's scores read only the runs of
+// the hidden units ReLU left non-zero, each as one stream (scorer.scores).
 func (p *Predictor) scoringMats() [2]kernels.Mat {
 	w1, _ := p.mats()
 	if h, ok := halfExact(w1.F32); ok {
@@ -122,6 +122,7 @@ func (p *Predictor) scoringMats() [2]kernels.Mat {
 	if h, ok := halfExact(w2t); ok {
 		in = kernels.Mat{DType: kernels.F16, Out: p.Out, In: p.Rank, Transposed: true, Half: h}
 	}
+	in.Panels = kernels.PackPanels(&in)
 	return [2]kernels.Mat{*w1, in}
 }
 
