@@ -136,7 +136,7 @@ func Load(dir string, opts Options) (*Model, error) {
 				L.downFinite = L.down.Finite()
 				if o := L.o; o != nil && !o.Transposed && opts.NoPanels {
 					// With panels, kept heads read o's panels instead.
-					L.oT = neuronMajor(m.mem, o)
+					L.oT = kernels.InputMajorIn(o, m.mem)
 				}
 			}
 		})
@@ -517,28 +517,6 @@ func widenMat(mem *weightmem.Arena, w *kernels.Mat) {
 		kernels.BF16ToF32(f, w.Half)
 	}
 	w.DType, w.F32, w.Half = kernels.F32, f, nil
-}
-
-// neuronMajor copies an output-major matrix into In×Out storage (the
-// Transposed layout) held in mem, keeping its dtype.
-func neuronMajor(mem *weightmem.Arena, w *kernels.Mat) *kernels.Mat {
-	t := &kernels.Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
-	if w.DType == kernels.F32 {
-		t.F32 = mem.Float32s(len(w.F32))
-		for j := 0; j < w.Out; j++ {
-			for k := 0; k < w.In; k++ {
-				t.F32[k*w.Out+j] = w.F32[j*w.In+k]
-			}
-		}
-		return t
-	}
-	t.Half = mem.Uint16s(len(w.Half))
-	for j := 0; j < w.Out; j++ {
-		for k := 0; k < w.In; k++ {
-			t.Half[k*w.Out+j] = w.Half[j*w.In+k]
-		}
-	}
-	return t
 }
 
 // ErrNonFinite marks scores computed from NaN or infinite logits.

@@ -73,6 +73,11 @@ func LinearGather(y, x []float32, w *Mat, bias []float32, idx []int32) {
 // It runs in the calling goroutine.
 func LinearScatterIn(y, h []float32, w *Mat, bias []float32, idx []int32) {
 	checkScatter(y, h, w, bias, idx)
+	scatterIn(y, h, w, bias, idx)
+}
+
+// scatterIn is LinearScatterIn on arguments its caller has checked.
+func scatterIn(y, h []float32, w *Mat, bias []float32, idx []int32) {
 	if !w.Transposed {
 		// Out×In: output j gathers W[j][idx[r]] along its row.
 		for j := range y {

@@ -55,7 +55,7 @@ func (s *Scratch) LinearScatterInParallel(y, h []float32, w *Mat, bias []float32
 	if workers <= 1 {
 		// In the calling goroutine, without the closures runJobs takes
 		// (they escape, and a predictor scores every token this way).
-		LinearScatterIn(y, h, w, bias, idx)
+		scatterIn(y, h, w, bias, idx)
 		return
 	}
 	runJobs(s.team(), jobs, workers, func() func(int) {

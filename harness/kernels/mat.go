@@ -43,6 +43,45 @@ func (m *Mat) Check() {
 	m.checkPanels()
 }
 
+// InputMajorIn copies the output-major (not Transposed) matrix w into In×Out
+// storage, the Transposed layout, keeping its dtype, with the storage from a
+// (the Go heap when a is nil): input k's Out weights become one contiguous
+// run, which a scattered product over a few kept inputs reads as one stream
+// each (LinearScatterIn). w's panel copy is not carried over.
+func InputMajorIn(w *Mat, a Allocator) *Mat {
+	w.Check()
+	if w.Transposed {
+		panic(msgInputMajor)
+	}
+	t := &Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
+	n := w.Out * w.In
+	if w.DType == F32 {
+		if a != nil {
+			t.F32 = a.Float32s(n)
+		} else {
+			t.F32 = make([]float32, n)
+		}
+		transposeInto(t.F32, w.F32, w.Out, w.In)
+		return t
+	}
+	if a != nil {
+		t.Half = a.Uint16s(n)
+	} else {
+		t.Half = make([]uint16, n)
+	}
+	transposeInto(t.Half, w.Half, w.Out, w.In)
+	return t
+}
+
+// transposeInto writes the rows×cols row-major src into dst as cols×rows.
+func transposeInto[T float32 | uint16](dst, src []T, rows, cols int) {
+	for j := 0; j < rows; j++ {
+		for k := 0; k < cols; k++ {
+			dst[k*rows+j] = src[j*cols+k]
+		}
+	}
+}
+
 // Row sets dst[k] = W[i][k], the logical row i converted to float32, for
 // k < In. len(dst) must equal In and 0 <= i < Out.
 func (m *Mat) Row(dst []float32, i int) {

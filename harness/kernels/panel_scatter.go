@@ -18,9 +18,9 @@ const msgScatterPanels = "kernels: LinearScatterInPanels: w has no panel copy (P
 // projection with heads skipped), where the input-major copy's rows, one
 // 2·Out-byte row per kept input, stream at about half that speed. For
 // inputs scattered one at a time (a sparse MLP's neurons) every run costs a
-// kernel call, except where PanelScatterIndexed reports an indexed kernel
-// (binary16 with AVX-512), which takes runs averaging under eight inputs in
-// one call; elsewhere use LinearScatterIn for such inputs. It is the panel GEMV
+// kernel call, except where there is an indexed kernel (binary16 with
+// AVX-512), which takes runs averaging under eight inputs in one call;
+// elsewhere use LinearScatterIn for such inputs. It is the panel GEMV
 // (gemvPanels) over the kept inputs: the outputs are split over up to
 // threads goroutines in jobs of whole panel groups, so the bits do not
 // depend on threads.
@@ -33,8 +33,3 @@ func (s *Scratch) LinearScatterInPanels(y, h []float32, w *Mat, bias []float32, 
 	// checkScatter has made h empty, so the sums are zero all the same.
 	gemvPanels(s.team(), y, h, w, bias, idx, threads)
 }
-
-// PanelScatterIndexed reports whether LinearScatterInPanels has an indexed
-// kernel for weights of dtype dt on this CPU: inputs kept one or two at a
-// time then cost one kernel call per panel group, not one per run.
-func PanelScatterIndexed(dt DType) bool { return panelIndexed(dt) }

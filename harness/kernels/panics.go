@@ -10,6 +10,7 @@ const (
 	msgPanelsLen   = "kernels: Mat: Panels must hold the panel layout of the Mat's own shape and dtype (rebuild them with PackPanels)"
 	msgRowIndex    = "kernels: Mat.Row: row index out of range"
 	msgRowLen      = "kernels: Mat.Row: len(dst) != In"
+	msgInputMajor  = "kernels: InputMajorIn: w is already Transposed"
 	msgLinearM     = "kernels: Linear: negative m"
 	msgLinearX     = "kernels: Linear: len(x) != m*In"
 	msgLinearY     = "kernels: Linear: len(y) != m*Out"

@@ -106,24 +106,19 @@ func (p *Predictor) RoundToHalf() bool {
 // contiguous run), so that a single token's scores read only the runs of
 // the hidden units ReLU left non-zero, each as one stream (scorer.scores).
 func (p *Predictor) scoringMats() [2]kernels.Mat {
-	w1, _ := p.mats()
-	if h, ok := halfExact(w1.F32); ok {
-		w1 = &kernels.Mat{DType: kernels.F16, Out: w1.Out, In: w1.In, Half: h}
-	}
-	w1.Panels = kernels.PackPanels(w1)
-	// w2t holds W2 transposed: element r·Out+j is W2[j][r].
-	w2t := make([]float32, len(p.W2))
-	for j := range p.Out {
-		for r := range p.Rank {
-			w2t[r*p.Out+j] = p.W2[j*p.Rank+r]
+	w1, w2 := p.mats()
+	var out [2]kernels.Mat
+	for i, w := range []*kernels.Mat{w1, w2} {
+		if h, ok := halfExact(w.F32); ok {
+			w = &kernels.Mat{DType: kernels.F16, Out: w.Out, In: w.In, Half: h}
 		}
+		if i == 1 {
+			w = kernels.InputMajorIn(w, nil)
+		}
+		w.Panels = kernels.PackPanels(w)
+		out[i] = *w
 	}
-	in := kernels.Mat{DType: kernels.F32, Out: p.Out, In: p.Rank, Transposed: true, F32: w2t}
-	if h, ok := halfExact(w2t); ok {
-		in = kernels.Mat{DType: kernels.F16, Out: p.Out, In: p.Rank, Transposed: true, Half: h}
-	}
-	in.Panels = kernels.PackPanels(&in)
-	return [2]kernels.Mat{*w1, in}
+	return out
 }
 
 // mats views the predictor's two layers as weight matrices: W1 Rank×In and
