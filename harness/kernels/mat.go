@@ -54,23 +54,27 @@ func InputMajorIn(w *Mat, a Allocator) *Mat {
 		panic(msgInputMajor)
 	}
 	t := &Mat{DType: w.DType, Out: w.Out, In: w.In, Transposed: true}
-	n := w.Out * w.In
+	t.F32, t.Half = storage(w.DType, w.Out*w.In, a)
 	if w.DType == F32 {
-		if a != nil {
-			t.F32 = a.Float32s(n)
-		} else {
-			t.F32 = make([]float32, n)
-		}
 		transposeInto(t.F32, w.F32, w.Out, w.In)
-		return t
-	}
-	if a != nil {
-		t.Half = a.Uint16s(n)
 	} else {
-		t.Half = make([]uint16, n)
+		transposeInto(t.Half, w.Half, w.Out, w.In)
 	}
-	transposeInto(t.Half, w.Half, w.Out, w.In)
 	return t
+}
+
+// storage returns zeroed storage for n values of dtype dt from a (the Go
+// heap when a is nil): the float32 slice for F32, the half slice otherwise.
+func storage(dt DType, n int, a Allocator) ([]float32, []uint16) {
+	switch {
+	case dt == F32 && a != nil:
+		return a.Float32s(n), nil
+	case dt == F32:
+		return make([]float32, n), nil
+	case a != nil:
+		return nil, a.Uint16s(n)
+	}
+	return nil, make([]uint16, n)
 }
 
 // transposeInto writes the rows×cols row-major src into dst as cols×rows.

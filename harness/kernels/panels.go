@@ -49,16 +49,7 @@ func PackPanelsIn(w *Mat, a Allocator) *Panels {
 	np, in := panelCount(w.Out), w.In
 	n := np * in * PanelRows
 	p := new(Panels)
-	switch {
-	case w.DType == F32 && a != nil:
-		p.F32 = a.Float32s(n)
-	case w.DType == F32:
-		p.F32 = make([]float32, n)
-	case a != nil:
-		p.Half = a.Uint16s(n)
-	default:
-		p.Half = make([]uint16, n)
-	}
+	p.F32, p.Half = storage(w.DType, n, a)
 	for j := 0; j < w.Out; j++ {
 		base := (j/PanelRows*in)*PanelRows + j%PanelRows
 		for k := 0; k < in; k++ {
